@@ -1,0 +1,238 @@
+"""Turn a raw location string into a normalised query.
+
+The normaliser never raises and is idempotent: ``normalize(normalize(s).key)``
+gives the same key as ``normalize(s)``. It keeps the original text next to the
+folded forms, because casing carries meaning (``CAN`` is a country code,
+``can`` is a verb).
+
+Steps: Unicode NFKC, flags to ISO codes, other emoji and symbols dropped,
+casefold, accent folding for Latin letters, split into parts on hard
+separators, noise phrases removed per part, postcodes and street words
+recognised.
+"""
+
+from __future__ import annotations
+
+import re
+import unicodedata
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+__all__ = ["Token", "Part", "Query", "normalize", "fold", "NoisePhrases"]
+
+# Regional indicator symbols U+1F1E6..U+1F1FF map to A..Z (Unicode TR51, flags).
+_RI_BASE = 0x1F1E6
+# Subdivision flags: U+1F3F4 WAVING BLACK FLAG, tag letters U+E0061..U+E007A,
+# CANCEL TAG U+E007F (Unicode TR51, emoji tag sequences).
+_BLACK_FLAG = "\U0001F3F4"
+_TAG_CANCEL = "\U000E007F"
+
+# Letters that do not decompose under NFD but readers treat as accented forms
+# (common practice in search folding).
+_SPECIAL_FOLD = {
+    "ø": "o", "æ": "ae", "œ": "oe", "ł": "l", "đ": "d", "ð": "d", "þ": "th",
+    "ı": "i", "ħ": "h", "ŧ": "t", "ŋ": "n", "ſ": "s", "ß": "ss",
+    "’": "'", "‘": "'", "ʻ": "'", "ʼ": "'", "`": "'", "´": "'",
+}
+
+# Hard separators: always split a string into parts.
+_HARD_SEP = re.compile(r"\s*(?:[,/|;·•()\[\]{}<>\n\t]|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|\bvia\b)\s*")
+# Postcode shapes whose format names the country (common practice; formats
+# from memory: UK outward+inward code, Canadian FSA+LDU, Irish Eircode).
+POSTCODE_FORMATS = {
+    "GB": re.compile(r"(?<!\S)([a-z]{1,2}\d[a-z\d]?) ?\d[a-z]{2}(?!\S)"),
+    "CA": re.compile(r"(?<!\S)([a-z]\d[a-z]) ?\d[a-z]\d(?!\S)"),
+    "IE": re.compile(r"(?<!\S)([a-z]\d{2}) ?[a-z\d]{4}(?!\S)"),
+}
+_NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
+_STREET_WORDS = frozenset(
+    "street rd road ave avenue blvd boulevard lane ln dr drive apt suite unit plot floor "
+    "rua av avenida calle carrer via viale piazza rue chemin allee strasse str ul ulica prospekt "
+    "nagar block sector ku chome".split()
+)
+_WS = re.compile(r"\s+")
+_ACRONYM = re.compile(r"(?<![\w.])(?:\w\.){2,}(?![\w])|(?<![\w.])(?:\w\.\w)(?![\w.])")
+_TOKEN = re.compile(r"[\w'.]+(?:-[\w'.]+)*", re.UNICODE)
+
+
+def _fold_char(ch: str) -> str:
+    if ch < "\x80":
+        return ch
+    special = _SPECIAL_FOLD.get(ch)
+    if special is not None:
+        return special
+    decomposed = unicodedata.normalize("NFD", ch)
+    base = decomposed[0]
+    if base < "\x80" and all(unicodedata.combining(c) for c in decomposed[1:]):
+        return base
+    return ch
+
+
+@lru_cache(maxsize=200_000)
+def fold(text: str) -> str:
+    """Casefold, fold Latin accents, drop dots and collapse spaces.
+
+    Non-Latin scripts are kept as they are (only casefolded); folding Cyrillic
+    or Devanagari marks would merge distinct names.
+    """
+    text = unicodedata.normalize("NFKC", text).casefold()
+    text = "".join(_fold_char(c) for c in text)
+    # Dotted acronyms (L.A., U.K., N.L.) keep their dots: "l.a." is not "la".
+    text = _ACRONYM.sub(lambda m: m.group(0).replace(".", "\x00"), text)
+    text = text.replace(".", " ").replace("\x00", ".").replace("'", "")
+    text = text.replace("_", " ").replace("-", " ")
+    return _WS.sub(" ", text).strip(" -")
+
+
+def _is_dropped_symbol(ch: str) -> bool:
+    """Emoji, pictographs and other symbols that never spell a place."""
+    cat = unicodedata.category(ch)
+    if cat in ("So", "Sk", "Sm", "Cs", "Co", "Cn", "Cf", "Cc") and ch not in "\n\t":
+        return True
+    return 0xFE00 <= ord(ch) <= 0xFE0F  # variation selectors
+
+
+def extract_flags(text: str) -> tuple[str, list[str]]:
+    """Replace flag emoji by spaces; return the text and the ISO codes found."""
+    codes: list[str] = []
+    out: list[str] = []
+    i, n = 0, len(text)
+    while i < n:
+        ch = text[i]
+        o = ord(ch)
+        if _RI_BASE <= o <= _RI_BASE + 25 and i + 1 < n and _RI_BASE <= ord(text[i + 1]) <= _RI_BASE + 25:
+            codes.append(chr(o - _RI_BASE + 65) + chr(ord(text[i + 1]) - _RI_BASE + 65))
+            out.append(" ")
+            i += 2
+            continue
+        if ch == _BLACK_FLAG:
+            j = i + 1
+            tag = []
+            while j < n and 0xE0020 <= ord(text[j]) <= 0xE007E:
+                tag.append(chr(ord(text[j]) - 0xE0000))
+                j += 1
+            if j < n and text[j] == _TAG_CANCEL:
+                j += 1
+            if len(tag) >= 3:
+                raw = "".join(tag).upper()
+                codes.append(f"{raw[:2]}-{raw[2:]}")
+            out.append(" ")
+            i = j
+            continue
+        out.append(ch)
+        i += 1
+    return "".join(out), codes
+
+
+@dataclass(frozen=True)
+class Token:
+    key: str   # folded form used for lookups
+    orig: str  # as typed (after NFKC), keeps case and accents
+
+
+@dataclass(frozen=True)
+class Part:
+    tokens: tuple[Token, ...]
+
+    @property
+    def key(self) -> str:
+        return " ".join(t.key for t in self.tokens)
+
+
+@dataclass(frozen=True)
+class Query:
+    raw: str
+    key: str                       # cache key: the whole folded string
+    parts: tuple[Part, ...]        # after noise removal
+    flags: tuple[str, ...] = ()    # ISO codes from flag emoji
+    postcodes: tuple[str, ...] = ()
+    streetlike: bool = False
+    had_noise: bool = False
+    has_letters: bool = field(default=False)
+
+    @property
+    def tokens(self) -> list[Token]:
+        return [t for p in self.parts for t in p.tokens]
+
+
+class NoisePhrases:
+    """Noise phrases by position: removed at the start, end or anywhere of a part."""
+
+    def __init__(self, prefix: list[str], suffix: list[str], anywhere: list[str]) -> None:
+        def alternation(phrases: list[str]) -> str:
+            keys = sorted({fold(p) for p in phrases if fold(p)}, key=len, reverse=True)
+            return "|".join(re.escape(k) for k in keys) or r"(?!x)x"
+
+        self._prefix = re.compile(rf"^(?:(?:{alternation(prefix)})(?:\s+|$))+")
+        self._suffix = re.compile(rf"(?:(?:^|\s+)(?:{alternation(suffix)}))+$")
+        self._anywhere = re.compile(rf"(?:^|\s)(?:{alternation(anywhere)})(?=\s|$)")
+
+    def strip(self, key: str) -> str:
+        previous = None
+        while previous != key:
+            previous = key
+            key = self._anywhere.sub(" ", key).strip()
+            key = self._prefix.sub("", key).strip()
+            key = self._suffix.sub("", key).strip()
+        return key
+
+
+_EMPTY_NOISE = NoisePhrases([], [], [])
+
+
+def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
+    """Normalise one raw value. Never raises; non-strings become empty queries."""
+    if not isinstance(raw, str):
+        raw = "" if raw is None else str(raw)
+    text = unicodedata.normalize("NFKC", raw)
+    text, flags = extract_flags(text)
+    text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
+    text = text.replace("#", " ").replace("@", " ").replace("\"", " ").replace("!", " ")
+    text = text.replace("?", " ").replace("*", " ").replace("~", " ")
+    key = fold(text)
+    if flags:
+        key = (key + " " + " ".join(f"[{c.lower()}]" for c in flags)).strip()
+    noise = noise or _EMPTY_NOISE
+    parts: list[Part] = []
+    postcodes: list[str] = []
+    streetlike = False
+    had_noise = False
+    for chunk in _HARD_SEP.split(text):
+        if not chunk or not chunk.strip():
+            continue
+        folded = fold(chunk)
+        stripped = noise.strip(folded)
+        if stripped != folded:
+            had_noise = True
+        if not stripped:
+            continue
+        tokens: list[Token] = []
+        # Align kept folded words with their typed forms.
+        orig_words = [w for w in _TOKEN.findall(chunk)]
+        orig_by_key: dict[str, str] = {}
+        for w in orig_words:
+            orig_by_key.setdefault(fold(w), w.strip("."))
+        for country, pattern in POSTCODE_FORMATS.items():
+            for m in pattern.finditer(stripped):
+                if any(c.isdigit() for c in m.group(0)) and any(c.isalpha() for c in m.group(0)):
+                    postcodes.append(f"{country}:{m.group(1)}")
+            stripped = pattern.sub(
+                lambda m: " " if any(c.isalpha() for c in m.group(0)) else m.group(0), stripped
+            )
+        for word in stripped.split():
+            word = word.strip("'-")
+            if not word:
+                continue
+            if _NUMERIC_POSTCODE.match(word):
+                postcodes.append(word)
+                continue
+            if word.isdigit() or re.fullmatch(r"[\d\-/]+[a-z]?", word):
+                streetlike = True
+                continue
+            if word in _STREET_WORDS:
+                streetlike = True
+            tokens.append(Token(word, orig_by_key.get(word, word)))
+        if tokens:
+            parts.append(Part(tuple(tokens)))
+    has_letters = any(c.isalpha() for c in key) or bool(flags)
+    return Query(raw, key, tuple(parts), tuple(flags), tuple(postcodes), streetlike, had_noise, has_letters)

@@ -1,0 +1,111 @@
+"""The result of resolving one distinct string, and the reason vocabulary."""
+
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+from enum import Enum
+from typing import Any
+
+__all__ = ["Status", "Reason", "Candidate", "Resolution", "REASON_TEXT"]
+
+
+class Status(str, Enum):
+    MATCHED = "matched"
+    REVIEW = "review"
+    UNMATCHED = "unmatched"
+    NOT_A_PLACE = "not_a_place"
+
+
+class Reason(str, Enum):
+    """How a resolution was decided. Documented in the README."""
+
+    EMPTY = "empty"
+    PLACEHOLDER = "placeholder"
+    JUNK = "junk"
+    FICTIONAL = "fictional"
+    WORLD_REGION = "world_region"
+    FLAG = "flag"
+    COUNTRY_NAME = "country_name"
+    COUNTRY_CODE = "country_code"
+    SUBDIVISION = "subdivision"
+    NAMED_AREA = "named_area"
+    NICKNAME = "nickname"
+    CITY = "city"
+    CITY_WITH_CONTEXT = "city_with_context"
+    CITY_BY_SIZE = "city_by_size"
+    POSTCODE = "postcode"
+    SPELLING = "spelling"
+    SAME_COUNTRY_PLACES = "same_country_places"
+    SEVERAL_COUNTRIES = "several_countries"
+    AMBIGUOUS = "ambiguous"
+    FILE_PRIOR = "file_prior"
+    NO_MATCH = "no_match"
+
+
+REASON_TEXT: dict[Reason, str] = {
+    Reason.EMPTY: "the cell is empty or blank",
+    Reason.PLACEHOLDER: "a word for 'no value' (n/a, none, -, unknown …) in one of several languages",
+    Reason.JUNK: "text that is not a place (localhost, Earth, remote, keyboard mash …)",
+    Reason.FICTIONAL: "a fictional place (Middle-earth, Gotham …)",
+    Reason.WORLD_REGION: "a continent or a region spanning several countries: no single country",
+    Reason.FLAG: "decided by a flag emoji",
+    Reason.COUNTRY_NAME: "a country name, in any language or script the index knows",
+    Reason.COUNTRY_CODE: "an ISO 3166-1 alpha-2 or alpha-3 code where it is safe to read one",
+    Reason.SUBDIVISION: "a state, province or region name or abbreviation",
+    Reason.NAMED_AREA: "a named area inside one country (Bay Area, Midwest …)",
+    Reason.NICKNAME: "a nickname or abbreviation from the curated table (NYC, KL …)",
+    Reason.CITY: "a city or town name with one plausible country",
+    Reason.CITY_WITH_CONTEXT: "a city confirmed by a country or subdivision elsewhere in the text",
+    Reason.CITY_BY_SIZE: "a city name shared by places in several countries; the largest by far was chosen",
+    Reason.POSTCODE: "a postcode whose format or area names the place",
+    Reason.SPELLING: "a near spelling of a known name (typo tolerated)",
+    Reason.SAME_COUNTRY_PLACES: "several places, all in one country",
+    Reason.SEVERAL_COUNTRIES: "places in several countries: no single country",
+    Reason.AMBIGUOUS: "several readings of comparable weight",
+    Reason.FILE_PRIOR: "an ambiguous name settled by the countries of the rest of the file",
+    Reason.NO_MATCH: "nothing in the text matched the place index",
+}
+
+
+@dataclass(frozen=True)
+class Candidate:
+    country: str
+    subdivision: str = ""
+    city: str = ""
+    lat: float | None = None
+    lon: float | None = None
+    score: float = 0.0
+
+    def label(self) -> str:
+        return " / ".join(x for x in (self.city, self.subdivision, self.country) if x) or "-"
+
+
+@dataclass
+class Resolution:
+    status: Status
+    reason: Reason
+    country: str = ""
+    subdivision: str = ""
+    city: str = ""
+    lat: float | None = None
+    lon: float | None = None
+    geonameid: int | None = None
+    confidence: float = 0.0
+    score: float = 0.0  # the uncalibrated evidence score the confidence is fitted on
+    candidates: list[Candidate] = field(default_factory=list)
+    # Per-country evidence, kept so a file-level prior can re-rank later.
+    evidence: dict[str, float] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        d = asdict(self)
+        d["status"] = self.status.value
+        d["reason"] = self.reason.value
+        return d
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> Resolution:
+        d = dict(d)
+        d["status"] = Status(d["status"])
+        d["reason"] = Reason(d["reason"])
+        d["candidates"] = [Candidate(**c) for c in d.get("candidates", [])]
+        return cls(**d)

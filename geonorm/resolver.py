@@ -1,0 +1,465 @@
+"""The cascade resolver: stages gather mentions, then one decision weighs them.
+
+Decision outline
+----------------
+1. The not-a-place filter may end the cascade (empty, placeholder, junk, fictional).
+2. Flags, postcodes, country, subdivision and city stages collect *mentions*;
+   the fuzzy stage runs only on words no exact stage explained.
+3. Mentions are grouped into places: a country, subdivision or flag that
+   follows a city qualifies it ("Perth, Scotland"); a second city, or a
+   container that fits nothing before it, starts a new place.
+4. Each place gets a distribution over countries (readings weighted by
+   population and name origin, constrained by its qualifiers). All places in
+   one country → that country; in several → ``review`` with the candidates.
+5. The evidence score is mapped to a calibrated confidence (``calibration.py``);
+   ``matched`` needs confidence ≥ the accept threshold.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import Counter, defaultdict
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass, field
+
+from .calibration import Calibration, load_calibration
+from .index import Place, PlaceIndex, load_index
+from .normalize import NoisePhrases, Query, normalize
+from .resolution import Candidate, Reason, Resolution, Status
+from .stages import (
+    STOPWORDS, CityStage, CountryStage, FlagStage, FuzzyStage, Mention, NotAPlaceStage,
+    PostcodeStage, Reading, Segmenter, SubdivisionStage,
+)
+
+__all__ = ["Resolver", "RESOLVER_VERSION", "DEFAULT_ACCEPT"]
+
+RESOLVER_VERSION = "1.0"
+DEFAULT_ACCEPT = 0.80
+# Prior odds against a person listing places in several countries (common practice
+# in our tuning on labelled strings: most multi-part strings are one country).
+MULTI_PENALTY = 0.2
+# Territories with their own ISO 3166-1 code and the state they belong to
+# (from memory; ISO 3166-1 remarks). "Hong Kong, China" means HK.
+SOVEREIGN = {
+    **dict.fromkeys(["HK", "MO"], "CN"),
+    **dict.fromkeys(["PR", "GU", "VI", "AS", "MP", "UM"], "US"),
+    **dict.fromkeys(["GL", "FO"], "DK"),
+    **dict.fromkeys(["AW", "CW", "SX", "BQ"], "NL"),
+    **dict.fromkeys(["BM", "KY", "GI", "VG", "AI", "MS", "TC", "FK", "SH", "PN", "IO", "GS",
+                     "JE", "GG", "IM"], "GB"),
+    **dict.fromkeys(["RE", "GP", "MQ", "GF", "YT", "NC", "PF", "PM", "BL", "MF", "WF", "TF"], "FR"),
+    "AX": "FI", "SJ": "NO", "BV": "NO",
+    **dict.fromkeys(["CX", "CC", "NF", "HM"], "AU"),
+    **dict.fromkeys(["TK", "NU", "CK"], "NZ"),
+}
+NOT_A_PLACE_REASON = {"empty": Reason.EMPTY, "placeholder": Reason.PLACEHOLDER,
+                      "junk": Reason.JUNK, "fictional": Reason.FICTIONAL}
+
+
+@dataclass
+class _Group:
+    mentions: list[Mention] = field(default_factory=list)
+
+    @property
+    def readings(self) -> list[Reading]:
+        return [r for m in self.mentions for r in m.readings]
+
+    def countries(self) -> set[str]:
+        return {r.place.cc for r in self.readings if r.place.cc}
+
+    def has_point(self) -> bool:
+        return any(m.is_point for m in self.mentions)
+
+
+def _dist(readings: Iterable[Reading]) -> dict[str, float]:
+    d: dict[str, float] = defaultdict(float)
+    for r in readings:
+        if r.place.cc:
+            d[r.place.cc] += r.weight * r.similarity ** 4
+    total = sum(d.values())
+    return {c: v / total for c, v in d.items()} if total > 0 else {}
+
+
+def _is_container_reading(r: Reading) -> bool:
+    return r.place.kind in ("country", "subdivision", "area")
+
+
+class Resolver:
+    """Resolve free-text locations. Thread-safe after construction.
+
+    >>> r = Resolver()                      # doctest: +SKIP
+    >>> r.resolve("austin tx").country      # doctest: +SKIP
+    'US'
+    """
+
+    def __init__(self, index: PlaceIndex | None = None, *, accept: float = DEFAULT_ACCEPT,
+                 calibration: Calibration | None = None, progress=None) -> None:
+        if not 0.0 <= accept <= 1.0:
+            from .errors import InputError
+
+            raise InputError(f"--accept must be between 0 and 1, got {accept}",
+                             hint="use a probability such as 0.8")
+        self.index = index or load_index(progress=progress)
+        self.accept = accept
+        self.calibration = calibration or load_calibration()
+        prefix, suffix, anywhere = [], [], []
+        for phrase, position in self.index.noise:
+            {"prefix": prefix, "suffix": suffix}.get(position, anywhere).append(phrase)
+        self.noise = NoisePhrases(prefix, suffix, anywhere)
+        seg = Segmenter(self.index)
+        self.not_a_place = NotAPlaceStage(self.index)
+        self.flags = FlagStage(self.index)
+        self.postcodes = PostcodeStage(self.index)
+        self.segmenter = seg
+        self.name_stages = [CountryStage(self.index, seg), SubdivisionStage(self.index, seg),
+                            CityStage(self.index, seg)]
+        self.fuzzy = FuzzyStage(self.index)
+
+    @property
+    def version(self) -> str:
+        return f"{RESOLVER_VERSION}+index{self.index.meta.get('index_version')}"
+
+    # -- public API ---------------------------------------------------------
+    def normalize(self, raw: object) -> Query:
+        return normalize(raw, self.noise)
+
+    def key(self, raw: object) -> str:
+        """The cache key of a raw value: its folded, whitespace-collapsed form."""
+        return normalize(raw).key
+
+    def resolve(self, raw: object, prior: Mapping[str, float] | None = None) -> Resolution:
+        """Resolve one string. Never raises on any text."""
+        query = self.normalize(raw)
+        kind = self.not_a_place.resolve(query)
+        if kind:
+            return Resolution(Status.NOT_A_PLACE, NOT_A_PLACE_REASON.get(kind, Reason.JUNK), confidence=1.0,
+                              score=1.0)
+        mentions = self.mentions(query)
+        res = self._decide(query, mentions, prior)
+        res.confidence = round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
+        if res.status in (Status.MATCHED, Status.REVIEW) and res.country:
+            res.status = Status.MATCHED if res.confidence >= self.accept else Status.REVIEW
+        return res
+
+    def resolve_many(self, values: Mapping[str, int] | Iterable[str]) -> dict[str, Resolution]:
+        """Resolve distinct strings (optionally with row counts) with a file-level prior.
+
+        The countries of the confidently matched strings, weighted by rows, form a
+        prior that re-ranks the ambiguous strings of the same file.
+        """
+        counts = dict(values) if isinstance(values, Mapping) else Counter(values)
+        first = {v: self.resolve(v) for v in counts}
+        prior = self.file_prior({v: (first[v], n) for v, n in counts.items()})
+        if not prior:
+            return first
+        for v, res in first.items():
+            if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
+                    and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE):
+                again = self.resolve(v, prior)
+                if again.country != res.country or again.confidence > res.confidence:
+                    again.reason = Reason.FILE_PRIOR
+                    again.confidence = round(self.calibration.apply(again.score, Reason.FILE_PRIOR), 4)
+                    again.status = Status.MATCHED if again.confidence >= self.accept else Status.REVIEW
+                    first[v] = again
+        return first
+
+    @staticmethod
+    def file_prior(results: Mapping[str, tuple[Resolution, int]], min_rows: int = 50) -> dict[str, float]:
+        """Country shares among confident single-reading rows (Laplace-smoothed)."""
+        tally: Counter[str] = Counter()
+        for res, n in results.values():
+            if res.status == Status.MATCHED and res.confidence >= 0.9 and len(res.evidence) <= 1:
+                tally[res.country] += n
+        total = sum(tally.values())
+        if total < min_rows:
+            return {}
+        k = max(1, len(tally))
+        return {c: (n + 1) / (total + k) for c, n in tally.items()}
+
+    # -- stages -------------------------------------------------------------
+    def mentions(self, query: Query) -> list[Mention]:
+        spans = self.segmenter.spans(query)
+        found: list[Mention] = []
+        found += self.flags.resolve(query)
+        found += self.postcodes.resolve(query)
+        by_span: dict[tuple[int, int], Mention] = {}
+        for stage in self.name_stages:
+            for m in stage.resolve(query, spans):
+                key = (m.part, m.start)
+                if key in by_span:
+                    by_span[key].readings.extend(m.readings)
+                else:
+                    by_span[key] = m
+        covered = {(s.part, i) for s in spans for i in range(s.start, s.end)
+                   if (s.part, s.start) in by_span}
+        # Words explained by nothing: try spelling-tolerant matching on them, and on
+        # whole parts whose only exact readings are small places.
+        weak_parts = {pi for pi in range(len(query.parts))
+                      if not any(m.part == pi and max(r.place.pop for r in m.readings) >= 15000
+                                 or m.part == pi and any(_is_container_reading(r) for r in m.readings)
+                                 for m in by_span.values())}
+        for pi in weak_parts:
+            covered -= {(pi, i) for i in range(len(query.parts[pi].tokens))}
+        fuzzy = self.fuzzy.resolve(query, covered)
+        for fm in fuzzy:
+            for key in [k for k, m in by_span.items() if k[0] == fm.part and k[0] in weak_parts]:
+                del by_span[key]
+            by_span[(fm.part, fm.start)] = fm
+        found += sorted(by_span.values(), key=lambda m: (m.part, m.start))
+        return self._prune(found)
+
+    @staticmethod
+    def _prune(mentions: list[Mention]) -> list[Mention]:
+        """A country name outweighs towns of the same name elsewhere (Lebanon, PA)."""
+        for m in mentions:
+            named = {r.place.cc for r in m.readings
+                     if r.place.kind == "country" and r.origin in ("name", "alias", "translation", "flag")}
+            if named:
+                m.readings = [r for r in m.readings if r.place.cc in named or r.place.kind != "city"
+                              or r.place.pop >= 1_000_000]
+        return [m for m in mentions if m.readings]
+
+    # -- decision -----------------------------------------------------------
+    def _group(self, mentions: list[Mention]) -> tuple[list[_Group], list[Mention]]:
+        """Split mentions into places; return the groups and the global qualifiers."""
+        flags = [m for m in mentions if m.source in ("flag", "postcode")]
+        rest = [m for m in mentions if m.source not in ("flag", "postcode")]
+        global_ = []
+        groups: list[_Group] = []
+        flag_countries = {r.place.cc for m in flags for r in m.readings}
+        if len(flag_countries) <= 1 or rest:
+            global_ = flags if len(flag_countries) <= 1 else []
+            if len(flag_countries) > 1:
+                rest = flags + rest
+        else:
+            rest = flags
+        for m in rest:
+            if not groups:
+                groups.append(_Group([m]))
+                continue
+            g = groups[-1]
+            gcountries = g.countries() | {SOVEREIGN.get(c, c) for c in g.countries()}
+            container = [r for r in m.readings if _is_container_reading(r) and r.place.cc in gcountries]
+            if container and m.source != "flag":
+                sub_ok = [r for r in container if r.place.kind != "subdivision" or not g.has_point() or any(
+                    p.place.sub == r.place.sub for p in g.readings if p.place.kind == "city")]
+                if sub_ok:
+                    m.readings = sub_ok
+                    g.mentions.append(m)
+                    continue
+            gids = {r.place.id for r in g.readings}
+            if any(r.place.id in gids for r in m.readings):
+                m.readings = [r for r in m.readings if r.place.id in gids]
+                g.mentions.append(m)
+                continue
+            groups.append(_Group([m]))
+        return groups, global_
+
+    def _group_dist(self, g: _Group, qualifiers: list[Mention]) -> tuple[dict[str, float], list[list[Reading]]]:
+        """Country distribution of one place, and each mention's consistent readings."""
+        mentions = g.mentions + qualifiers
+        containers = [m for m in mentions if all(_is_container_reading(r) or r.place.kind == "region"
+                                                 for r in m.readings)]
+        allowed_cc: set[str] | None = None
+        allowed_sub: set[str] = set()
+        for m in containers:
+            ccs = {r.place.cc for r in m.readings if r.place.cc}
+            ccs |= {c for c, s in SOVEREIGN.items() if s in ccs}
+            if ccs:
+                allowed_cc = ccs if allowed_cc is None else (allowed_cc & ccs) or allowed_cc
+            subs = {r.place.sub for r in m.readings if r.place.kind == "subdivision"}
+            if subs and len(containers) > 0:
+                allowed_sub |= subs
+        kept: list[list[Reading]] = []
+        for m in mentions:
+            rs = m.readings
+            if allowed_cc is not None and m not in containers:
+                rs = [r for r in rs if r.place.cc in allowed_cc] or rs
+            if allowed_sub and m not in containers:
+                in_sub = [r for r in rs if r.place.sub in allowed_sub]
+                rs = in_sub or rs
+            kept.append(rs)
+        dist: dict[str, float] = {}
+        for rs, m in zip(kept, mentions):
+            d = _dist(rs)
+            if not d:
+                continue
+            # Territories inherit their sovereign's qualifier: "Hong Kong, China".
+            for terr, sov in SOVEREIGN.items():
+                if sov in d and any(terr in dist for _ in [0]) and terr not in d:
+                    d[terr] = d[sov]
+            if not dist:
+                dist = d
+            else:
+                merged = {c: dist[c] * d[c] for c in dist if c in d}
+                if sum(merged.values()) > 0:
+                    dist = merged
+            total = sum(dist.values())
+            dist = {c: v / total for c, v in dist.items()}
+        return dist, kept
+
+    def _decide(self, query: Query, mentions: list[Mention], prior: Mapping[str, float] | None) -> Resolution:
+        if not mentions:
+            return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
+        groups, qualifiers = self._group(mentions)
+        regional = [g for g in groups if all(r.place.kind == "region" for r in g.readings)]
+        located = [g for g in groups if g not in regional]
+        if not located and not qualifiers:
+            return Resolution(Status.UNMATCHED, Reason.WORLD_REGION)
+        if not located:
+            located = [_Group(qualifiers)]
+            qualifiers = []
+        dists = []
+        for g in located:
+            d, kept = self._group_dist(g, qualifiers)
+            dists.append((g, d, kept))
+        dists = [t for t in dists if t[1]]
+        if not dists:
+            return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
+        # Drop weak stray places (a street word that happens to be a hamlet's name).
+        if len(dists) > 1:
+            strong = [t for t in dists if max(r.place.pop for rs in t[2] for r in rs) >= 5000
+                      or any(_is_container_reading(r) for rs in t[2] for r in rs)]
+            dists = strong or dists
+        countries = set().union(*(d.keys() for _, d, _ in dists))
+        joint = {c: math.prod(d.get(c, 0.0) for _, d, _ in dists) for c in countries}
+        if prior:
+            joint = {c: v * math.sqrt(prior.get(c, 0.0) + 0.02) for c, v in joint.items()}
+        total = sum(joint.values())
+        bests = [max(d, key=lambda c: (d[c], c)) for _, d, _ in dists]
+        distinct = sorted(set(bests), key=bests.index)
+        multi_score = math.prod(max(d.values()) for _, d, _ in dists) * MULTI_PENALTY ** (len(distinct) - 1)
+        top = max(joint, key=lambda c: (joint[c], c)) if total > 0 else ""
+        if len(distinct) > 1 and (total <= 0 or multi_score > joint[top]):
+            cands = []
+            for (g, d, kept), c in zip(dists, bests):
+                cands.append(self._candidate(c, kept, d[c]))
+            return Resolution(Status.REVIEW, Reason.SEVERAL_COUNTRIES, candidates=cands[:5],
+                              evidence={c: round(v, 4) for c, v in sorted(joint.items())} if total else {})
+        p = joint[top] / total
+        evidence = {c: round(v / total, 4) for c, v in sorted(joint.items(), key=lambda t: -t[1])[:5]
+                    if v / total >= 0.005}
+        res = Resolution(Status.MATCHED, Reason.CITY, country=top, evidence=evidence)
+        self._fill(res, query, dists, top, qualifiers)
+        res.score = self._score(p, res, query, dists)
+        res.candidates = [self._candidate(c, [r for _, _, kept in dists for r in kept], evidence[c])
+                          for c in list(evidence)[:4]]
+        return res
+
+    @staticmethod
+    def _candidate(cc: str, kept, score: float) -> Candidate:
+        flat = [r for rs in kept for r in (rs if isinstance(rs, list) else [rs])]
+        cities = [r for r in flat if r.place.kind == "city" and r.place.cc == cc]
+        best = max(cities, key=lambda r: r.weight, default=None)
+        if best:
+            return Candidate(cc, best.place.sub, best.place.name, best.place.lat, best.place.lon, round(score, 4))
+        subs = {r.place.sub for r in flat if r.place.kind == "subdivision" and r.place.cc == cc}
+        return Candidate(cc, subs.pop() if len(subs) == 1 else "", "", None, None, round(score, 4))
+
+    def _fill(self, res: Resolution, query: Query, dists, top: str, qualifiers: list[Mention]) -> None:
+        """Subdivision, city and reason for a single-country answer."""
+        subs_named: set[str] = set()
+        points: list[Reading] = []
+        origins: set[str] = set()
+        sources: set[str] = set()
+        kinds: set[str] = set()
+        ambiguous_points = False
+        for g, d, kept in dists:
+            group_points = []
+            for m, rs in zip(g.mentions + qualifiers, kept):
+                rs_c = [r for r in rs if r.place.cc == top or SOVEREIGN.get(r.place.cc) == top]
+                sources.add(m.source)
+                for r in rs_c:
+                    origins.add(r.origin)
+                    kinds.add(r.place.kind)
+                cont = [r for r in rs_c if r.place.kind in ("subdivision", "area") and r.place.sub]
+                if cont and all(_is_container_reading(r) for r in rs):
+                    subs_named |= {r.place.sub for r in cont}
+                cities = [r for r in rs_c if r.place.kind == "city"]
+                if cities and (m.is_point or not any(_is_container_reading(r) for r in rs_c)):
+                    group_points.append(max(cities, key=lambda r: r.weight))
+                    if len({r.place.cc for r in rs if r.place.kind == "city"}) > 1:
+                        ambiguous_points = True
+                elif cities:
+                    # A container name that is also a city: the city when it is most of it.
+                    conts = [r for r in rs_c if _is_container_reading(r)]
+                    big = max(cities, key=lambda r: r.place.pop)
+                    if conts and big.place.pop >= 0.5 * max(max(c.place.pop for c in conts), 1):
+                        group_points.append(big)
+            if group_points:
+                points.append(max(group_points, key=lambda r: r.weight))
+        if len(dists) == 1 and len(points) == 1:
+            city = points[0].place
+            if not subs_named or city.sub in subs_named:
+                res.city, res.lat, res.lon, res.geonameid = city.name, city.lat, city.lon, city.gid
+                res.subdivision = city.sub
+        if not res.city:
+            subs = subs_named or {r.place.sub for r in points}
+            if len(dists) > 1:
+                subs = {r.place.sub for r in points}
+                if len(points) < len(dists):
+                    subs = subs_named if len(subs_named) == 1 and not points else set()
+            if len(subs) == 1:
+                res.subdivision = subs.pop()
+        elif subs_named and res.subdivision not in subs_named:
+            res.subdivision = ""
+        if res.country != top:
+            res.country = top
+        # Reason, most specific evidence first.
+        if len(dists) > 1:
+            res.reason = Reason.SAME_COUNTRY_PLACES
+        elif "fuzzy" in sources:
+            res.reason = Reason.SPELLING
+        elif "flag" in sources and not points:
+            res.reason = Reason.FLAG
+        elif points:
+            if "alias" in origins and not any(r.origin != "alias" for r in points) is False:
+                res.reason = Reason.NICKNAME
+            elif any(r.origin == "alias" for r in points):
+                res.reason = Reason.NICKNAME
+            elif len([m for m in dists[0][0].mentions + qualifiers]) > 1:
+                res.reason = Reason.CITY_WITH_CONTEXT
+            elif ambiguous_points:
+                res.reason = Reason.CITY_BY_SIZE
+            else:
+                res.reason = Reason.CITY
+        elif "postcode" in sources:
+            res.reason = Reason.POSTCODE
+        elif "country" in kinds and not (kinds & {"subdivision", "area"}):
+            res.reason = Reason.COUNTRY_CODE if origins & {"code2", "code3"} and not origins & {
+                "name", "translation", "alias"} else Reason.COUNTRY_NAME
+        elif "area" in kinds:
+            res.reason = Reason.NAMED_AREA
+        elif origins == {"alias"}:
+            res.reason = Reason.NICKNAME
+        else:
+            res.reason = Reason.SUBDIVISION
+        if len(res.evidence) > 1 and max(res.evidence.values()) < 0.9:
+            res.reason = Reason.AMBIGUOUS if res.reason not in (Reason.CITY_BY_SIZE,) else res.reason
+
+    @staticmethod
+    def _score(p: float, res: Resolution, query: Query, dists) -> float:
+        """Uncalibrated evidence score in (0, 1)."""
+        score = p
+        all_readings = [r for _, _, kept in dists for rs in kept for r in rs if r.place.cc == res.country]
+        sims = [r.similarity for r in all_readings if r.origin == "fuzzy"]
+        if sims:
+            score *= min(sims) ** 3
+        # Words nobody explained lower the score.
+        explained = {(m.part, m.start) for g, _, _ in dists for m in g.mentions}
+        words = [t.key for p_ in query.parts for t in p_.tokens if t.key not in STOPWORDS]
+        n_mentions = len(explained)
+        unexplained = max(0, len(words) - sum(len(m.text.split()) for g, _, _ in dists for m in g.mentions))
+        if words:
+            score *= 0.85 ** min(unexplained, 4)
+        if n_mentions == 0 and query.flags:
+            score *= 1.0
+        # A bare small place met only by an alternate name is weak evidence.
+        best = max(all_readings, key=lambda r: r.weight, default=None)
+        if best and best.place.kind == "city" and len(dists) == 1 and len(dists[0][0].mentions) == 1:
+            if best.origin == "alt" and best.place.pop < 100_000:
+                score *= 0.75
+            score *= min(1.0, 0.55 + 0.1 * math.log10(max(best.place.pop, 1)))
+        if best and best.origin == "adjective" and all(r.origin == "adjective" for r in all_readings):
+            score *= 0.6
+        return max(1e-4, min(0.9999, score))
