@@ -2,8 +2,11 @@
 
 Platt scaling (a logistic curve on the logit of the score) fitted on a
 labelled file: of answers given confidence 0.9, about 90% should be right.
-The shipped parameters live in ``calibration.json`` next to this module and
-were fitted on the project's labelled development set; refit with
+Each reason family (city by size, spelling, ambiguous …) gets its own curve,
+shrunk towards the global one so that a family with few labelled examples
+stays close to it. The shipped parameters live in ``calibration.json`` next
+to this module and were fitted on the project's labelled development set;
+refit with
 
     python -m geonorm.calibration LABELLED.csv --column text --truth country
 """
@@ -41,10 +44,12 @@ class Calibration:
     n: int = 0
     ece_before: float | None = None
     ece_after: float | None = None
-    notes: dict = field(default_factory=dict)
+    by_reason: dict[str, list[float]] = field(default_factory=dict)
 
     def apply(self, score: float, reason: object = None) -> float:
-        return _sigmoid(self.a * _logit(score) + self.b)
+        key = getattr(reason, "value", reason)
+        a, b = self.by_reason.get(str(key), (self.a, self.b))
+        return _sigmoid(a * _logit(score) + b)
 
     def save(self, path: Path = _PATH) -> None:
         path.write_text(json.dumps(asdict(self), indent=2) + "\n", encoding="utf-8")
@@ -56,11 +61,15 @@ def load_calibration(path: Path = _PATH) -> Calibration:
     return Calibration(**json.loads(path.read_text(encoding="utf-8")))
 
 
-def fit_platt(scores: Sequence[float], correct: Sequence[bool], l2: float = 0.01) -> tuple[float, float]:
-    """Fit p = sigmoid(a * logit(s) + b) by Newton's method on the log loss (small ridge)."""
+def fit_platt(scores: Sequence[float], correct: Sequence[bool], l2: float = 0.01,
+              centre: tuple[float, float] = (1.0, 0.0)) -> tuple[float, float]:
+    """Fit p = sigmoid(a * logit(s) + b) by Newton's method on the log loss.
+
+    A ridge of strength ``l2`` pulls (a, b) towards ``centre``.
+    """
     xs = [_logit(s) for s in scores]
     ys = [1.0 if c else 0.0 for c in correct]
-    a, b = 1.0, 0.0
+    a, b = centre
     for _ in range(100):
         ga = gb = haa = hab = hbb = 0.0
         for x, y in zip(xs, ys):
@@ -71,9 +80,10 @@ def fit_platt(scores: Sequence[float], correct: Sequence[bool], l2: float = 0.01
             haa += w * x * x
             hab += w * x
             hbb += w
-        ga += l2 * (a - 1.0)
+        ga += l2 * (a - centre[0])
+        gb += l2 * (b - centre[1])
         haa += l2
-        hbb += 1e-9
+        hbb += l2 + 1e-9
         det = haa * hbb - hab * hab
         if abs(det) < 1e-12:
             break
@@ -115,12 +125,38 @@ def expected_calibration_error(confidences: Sequence[float], correct: Sequence[b
     return round(total, 4)
 
 
+def fit(results: dict, labelled: Sequence[tuple[str, str]], name: str = "", shrink: float = 4.0) -> Calibration:
+    """Fit the global curve and one per reason (ridge ``shrink`` towards the global)."""
+    from collections import defaultdict
+
+    from .resolution import Status
+
+    scores, correct, reasons = [], [], []
+    for text, truth in labelled:
+        res = results[text]
+        if res.country and res.status in (Status.MATCHED, Status.REVIEW):
+            scores.append(res.score)
+            correct.append(res.country == truth)
+            reasons.append(res.reason.value)
+    a, b = fit_platt(scores, correct)
+    by: dict[str, list[int]] = defaultdict(list)
+    for i, reason in enumerate(reasons):
+        by[reason].append(i)
+    by_reason = {}
+    for reason, idx in sorted(by.items()):
+        ra, rb = fit_platt([scores[i] for i in idx], [correct[i] for i in idx], l2=shrink, centre=(a, b))
+        by_reason[reason] = [round(ra, 4), round(rb, 4)]
+    cal = Calibration(a=round(a, 4), b=round(b, 4), fitted_on=name, n=len(scores), by_reason=by_reason)
+    cal.ece_before = expected_calibration_error(scores, correct)
+    cal.ece_after = expected_calibration_error([cal.apply(s, r) for s, r in zip(scores, reasons)], correct)
+    return cal
+
+
 def main(argv: Sequence[str] | None = None) -> None:
     import argparse
     import csv
 
     from .resolver import Resolver
-    from .resolution import Status
 
     ap = argparse.ArgumentParser(description="Refit the confidence calibration on a labelled CSV.")
     ap.add_argument("labelled")
@@ -133,16 +169,7 @@ def main(argv: Sequence[str] | None = None) -> None:
     resolver = Resolver(calibration=Calibration())
     texts = [r[args.column] for r in rows]
     results = resolver.resolve_many(texts)
-    scores, correct = [], []
-    for r in rows:
-        res = results[r[args.column]]
-        if res.country and res.status in (Status.MATCHED, Status.REVIEW):
-            scores.append(res.score)
-            correct.append(res.country == r[args.truth])
-    a, b = fit_platt(scores, correct)
-    cal = Calibration(a=round(a, 4), b=round(b, 4), fitted_on=Path(args.labelled).name, n=len(scores))
-    cal.ece_before = expected_calibration_error(scores, correct)
-    cal.ece_after = expected_calibration_error([cal.apply(s) for s in scores], correct)
+    cal = fit(results, [(r[args.column], r[args.truth]) for r in rows], name=Path(args.labelled).name)
     cal.save(Path(args.out))
     print(json.dumps(asdict(cal), indent=2))
 

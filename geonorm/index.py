@@ -17,6 +17,7 @@ import gettext
 import json
 import math
 import os
+import re
 import sqlite3
 import threading
 import time
@@ -106,6 +107,18 @@ def _good_alt_name(name: str) -> bool:
     if letters < 3 and all(ord(c) < 0x2E80 for c in name):  # short Latin/Cyrillic names
         return False
     return True
+
+
+def _name_variants(name: str) -> list[str]:
+    """ISO 3166-2 names carry variants: "Catalunya [Cataluña]", "A;B", "X, Région de"."""
+    out = []
+    for chunk in re.split(r"[;\[\]]", name):
+        chunk = chunk.strip()
+        if chunk:
+            out.append(chunk)
+            if ", " in chunk:
+                out.append(chunk.split(", ")[0])
+    return out or [name]
 
 
 def _top_level(sub_code: str, parents: dict[str, str | None]) -> str:
@@ -363,7 +376,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         if parents.get(s.code) or s.code in geographic:
             continue
         extra = iso2_data.get(s.country_code, {}).get(s.code, {})
-        names = {s.name}
+        names = set(_name_variants(s.name))
         other = extra.get("localOtherName") or ""
         for chunk in other.split(","):
             chunk = chunk.split("(")[0].strip()
@@ -398,7 +411,8 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         if parents.get(s.code):
             top = _top_level(s.code, parents)
             if top in sub_pid:
-                b.add_name(s.name, sub_pid[top], "lower_sub")
+                for n in _name_variants(s.name):
+                    b.add_name(n, sub_pid[top], "lower_sub")
     for lang in languages:
         try:
             tr = gettext.translation("iso3166-2", locales_dir, languages=[lang])

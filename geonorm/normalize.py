@@ -48,8 +48,10 @@ _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _STREET_WORDS = frozenset(
     "street rd road ave avenue blvd boulevard lane ln dr drive apt suite unit plot floor "
     "rua av avenida calle carrer via viale piazza rue chemin allee strasse str ul ulica prospekt "
-    "nagar block sector ku chome".split()
+    "nagar block sector ku chome cross marg house flat po box".split()
 )
+# "St" ends a street name ("Baggot St") but starts a saint's name ("St Helier").
+_STREET_SUFFIX_ONLY = frozenset({"st", "str"})
 _WS = re.compile(r"\s+")
 _ACRONYM = re.compile(r"(?<![\w.])(?:\w\.){2,}(?![\w])|(?<![\w.])(?:\w\.\w)(?![\w.])")
 _TOKEN = re.compile(r"[\w'.]+(?:-[\w'.]+)*", re.UNICODE)
@@ -133,6 +135,8 @@ class Token:
 @dataclass(frozen=True)
 class Part:
     tokens: tuple[Token, ...]
+    full_key: str = ""     # the folded part before noise removal ("bay area")
+    street: bool = False   # a street line of an address: not matched against places
 
     @property
     def key(self) -> str:
@@ -207,6 +211,10 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
         if not stripped:
             continue
         tokens: list[Token] = []
+        words = folded.split()
+        street = any(w in _STREET_WORDS for w in words) or any(
+            w in _STREET_SUFFIX_ONLY for w in words[1:])
+        streetlike = streetlike or street
         # Align kept folded words with their typed forms.
         orig_words = [w for w in _TOKEN.findall(chunk)]
         orig_by_key: dict[str, str] = {}
@@ -229,10 +237,8 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
             if word.isdigit() or re.fullmatch(r"[\d\-/]+[a-z]?", word):
                 streetlike = True
                 continue
-            if word in _STREET_WORDS:
-                streetlike = True
             tokens.append(Token(word, orig_by_key.get(word, word)))
         if tokens:
-            parts.append(Part(tuple(tokens)))
+            parts.append(Part(tuple(tokens), folded, street))
     has_letters = any(c.isalpha() for c in key) or bool(flags)
     return Query(raw, key, tuple(parts), tuple(flags), tuple(postcodes), streetlike, had_noise, has_letters)

@@ -31,7 +31,7 @@ from .stages import (
     PostcodeStage, Reading, Segmenter, SubdivisionStage,
 )
 
-__all__ = ["Resolver", "RESOLVER_VERSION", "DEFAULT_ACCEPT"]
+__all__ = ["Resolver", "RESOLVER_VERSION", "DEFAULT_ACCEPT", "apply_accept"]
 
 RESOLVER_VERSION = "1.0"
 DEFAULT_ACCEPT = 0.80
@@ -54,6 +54,13 @@ SOVEREIGN = {
 }
 NOT_A_PLACE_REASON = {"empty": Reason.EMPTY, "placeholder": Reason.PLACEHOLDER,
                       "junk": Reason.JUNK, "fictional": Reason.FICTIONAL}
+
+
+def apply_accept(res: Resolution, accept: float) -> Resolution:
+    """Set ``matched`` or ``review`` from the confidence and the accept threshold."""
+    if res.country and res.status in (Status.MATCHED, Status.REVIEW) and res.reason != Reason.SEVERAL_COUNTRIES:
+        res.status = Status.MATCHED if res.confidence >= accept else Status.REVIEW
+    return res
 
 
 @dataclass
@@ -117,7 +124,10 @@ class Resolver:
 
     @property
     def version(self) -> str:
-        return f"{RESOLVER_VERSION}+index{self.index.meta.get('index_version')}"
+        """Identifies everything an answer depends on except the accept threshold."""
+        cal = self.calibration
+        return (f"{RESOLVER_VERSION}+index{self.index.meta.get('index_version')}"
+                f"@{self.index.meta.get('built_at')}+cal{cal.a:.4f},{cal.b:.4f}")
 
     # -- public API ---------------------------------------------------------
     def normalize(self, raw: object) -> Query:
@@ -137,8 +147,14 @@ class Resolver:
         mentions = self.mentions(query)
         res = self._decide(query, mentions, prior)
         res.confidence = round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
-        if res.status in (Status.MATCHED, Status.REVIEW) and res.country:
-            res.status = Status.MATCHED if res.confidence >= self.accept else Status.REVIEW
+        return apply_accept(res, self.accept)
+
+    def reconsider(self, raw: object, res: Resolution, prior: Mapping[str, float]) -> Resolution:
+        """Re-rank an ambiguous answer with the file's country prior."""
+        again = self.resolve(raw, prior)
+        if again.country != res.country or again.confidence > res.confidence:
+            again.reason = Reason.FILE_PRIOR
+            return again
         return res
 
     def resolve_many(self, values: Mapping[str, int] | Iterable[str]) -> dict[str, Resolution]:
@@ -148,20 +164,19 @@ class Resolver:
         prior that re-ranks the ambiguous strings of the same file.
         """
         counts = dict(values) if isinstance(values, Mapping) else Counter(values)
-        first = {v: self.resolve(v) for v in counts}
-        prior = self.file_prior({v: (first[v], n) for v, n in counts.items()})
-        if not prior:
-            return first
-        for v, res in first.items():
-            if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
-                    and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE):
-                again = self.resolve(v, prior)
-                if again.country != res.country or again.confidence > res.confidence:
-                    again.reason = Reason.FILE_PRIOR
-                    again.confidence = round(self.calibration.apply(again.score, Reason.FILE_PRIOR), 4)
-                    again.status = Status.MATCHED if again.confidence >= self.accept else Status.REVIEW
-                    first[v] = again
-        return first
+        results = {v: self.resolve(v) for v in counts}
+        return self.apply_file_prior(results, counts, {v: v for v in counts})
+
+    def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int],
+                         raw: Mapping[str, object]) -> dict[str, Resolution]:
+        """Re-rank the ambiguous answers of one file with the file's country prior (in place)."""
+        prior = self.file_prior({k: (results[k], n) for k, n in counts.items()})
+        if prior:
+            for k, res in results.items():
+                if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
+                        and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE):
+                    results[k] = self.reconsider(raw[k], res, prior)
+        return results
 
     @staticmethod
     def file_prior(results: Mapping[str, tuple[Resolution, int]], min_rows: int = 50) -> dict[str, float]:
@@ -192,6 +207,8 @@ class Resolver:
                     by_span[key] = m
         covered = {(s.part, i) for s in spans for i in range(s.start, s.end)
                    if (s.part, s.start) in by_span}
+        if len(spans) == 1 and spans[0].key == query.key and by_span:
+            covered = {(pi, i) for pi, p in enumerate(query.parts) for i in range(len(p.tokens))}
         # Words explained by nothing: try spelling-tolerant matching on them, and on
         # whole parts whose only exact readings are small places.
         weak_parts = {pi for pi in range(len(query.parts))
@@ -210,13 +227,24 @@ class Resolver:
 
     @staticmethod
     def _prune(mentions: list[Mention]) -> list[Mention]:
-        """A country name outweighs towns of the same name elsewhere (Lebanon, PA)."""
+        """Drop readings a reader would not consider.
+
+        A country name outweighs towns and provinces of the same name elsewhere
+        (Lebanon, PA); a world region or named area outweighs small towns
+        (Middle East, MD); in longer texts, hamlets met only by an alternate
+        name are noise (a street word, "one", "plot").
+        """
         for m in mentions:
             named = {r.place.cc for r in m.readings
                      if r.place.kind == "country" and r.origin in ("name", "alias", "translation", "flag")}
             if named:
-                m.readings = [r for r in m.readings if r.place.cc in named or r.place.kind != "city"
-                              or r.place.pop >= 1_000_000]
+                m.readings = [r for r in m.readings if r.place.cc in named or (
+                    r.place.kind != "city" or r.place.pop >= 1_000_000) and r.origin != "lower_sub"]
+            if any(r.place.kind in ("region", "area") for r in m.readings):
+                m.readings = [r for r in m.readings if r.place.kind != "city" or r.place.pop >= 100_000]
+            if len(mentions) > 1:
+                m.readings = [r for r in m.readings
+                              if not (r.place.kind == "city" and r.origin == "alt" and r.place.pop < 15_000)]
         return [m for m in mentions if m.readings]
 
     # -- decision -----------------------------------------------------------
@@ -447,17 +475,20 @@ class Resolver:
             score *= min(sims) ** 3
         # Words nobody explained lower the score.
         explained = {(m.part, m.start) for g, _, _ in dists for m in g.mentions}
-        words = [t.key for p_ in query.parts for t in p_.tokens if t.key not in STOPWORDS]
-        n_mentions = len(explained)
-        unexplained = max(0, len(words) - sum(len(m.text.split()) for g, _, _ in dists for m in g.mentions))
-        if words:
-            score *= 0.85 ** min(unexplained, 4)
-        if n_mentions == 0 and query.flags:
-            score *= 1.0
+        # Within a part that names the place, a stray word is suspicious; a
+        # whole part nobody explained (a street line, an aside) much less so.
+        parts_with = {pi for pi, _ in explained}
+        for pi, part in enumerate(query.parts):
+            words = [t.key for t in part.tokens if t.key not in STOPWORDS]
+            if pi in parts_with:
+                used = sum(len(m.text.split()) for g, _, _ in dists for m in g.mentions if m.part == pi)
+                score *= 0.85 ** min(max(0, len(words) - used), 3)
+            elif words and not part.street:
+                score *= 0.95
         # A bare small place met only by an alternate name is weak evidence.
         best = max(all_readings, key=lambda r: r.weight, default=None)
         if best and best.place.kind == "city" and len(dists) == 1 and len(dists[0][0].mentions) == 1:
-            if best.origin == "alt" and best.place.pop < 100_000:
+            if best.origin == "alt" and best.place.pop < 15_000:
                 score *= 0.75
             score *= min(1.0, 0.55 + 0.1 * math.log10(max(best.place.pop, 1)))
         if best and best.origin == "adjective" and all(r.origin == "adjective" for r in all_readings):

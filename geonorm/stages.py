@@ -79,8 +79,8 @@ class Span:
 
 # Relative trust in a name by where it comes from (common practice: official
 # and curated names over alternate spellings and translations).
-ORIGIN_WEIGHT = {"name": 1.0, "alias": 1.0, "code2": 1.0, "code3": 1.0, "sub_code": 0.8,
-                 "postal": 1.0, "translation": 0.8, "alt": 0.3, "lower_sub": 0.25,
+ORIGIN_WEIGHT = {"name": 1.0, "alias": 5.0, "code2": 1.0, "code3": 1.0, "sub_code": 0.8,
+                 "postal": 1.0, "translation": 0.8, "alt": 0.3, "lower_sub": 0.05,
                  "adjective": 0.6, "region": 1.0}
 # A country named in the text is rarely meant as anything else.
 KIND_WEIGHT = {"country": 3.0, "subdivision": 1.0, "city": 1.0, "area": 1.0, "region": 1.0}
@@ -106,13 +106,25 @@ class Segmenter:
         return hits
 
     def spans(self, query: Query) -> list[Span]:
+        # A name with separators in it ("Korea, Republic of"): the whole text first.
+        if len(query.parts) > 1 and not query.flags:
+            hits = self._lookup(query.key)
+            if hits:
+                return [Span(0, 0, len(query.parts[0].tokens), query.key, hits)]
         out: list[Span] = []
         for pi, part in enumerate(query.parts):
             out.extend(self._part_spans(pi, part))
         return out
 
     def _part_spans(self, pi: int, part: Part) -> list[Span]:
+        if part.street:
+            return []
         words = [t.key for t in part.tokens]
+        # The part as typed, before noise removal, may itself be a name ("Bay Area").
+        if part.full_key != part.key and len(part.full_key.split()) > 1:
+            hits = self._lookup(part.full_key)
+            if hits:
+                return [Span(pi, 0, len(words), part.full_key, hits)]
         spans: list[Span] = []
         i = 0
         while i < len(words):
@@ -166,7 +178,7 @@ class NotAPlaceStage:
             return "placeholder" if len(raw) <= 3 else "junk"
         keys = {query.key, re.sub(r"[^\w\s]", " ", query.key).strip(), " ".join(p.key for p in query.parts)}
         keys |= {re.sub(r"\s+", " ", k).strip() for k in keys}
-        for k in keys:
+        for k in keys - {""}:
             kind = self.table.get(k)
             if kind:
                 return {"empty_like": "placeholder"}.get(kind, kind)
@@ -261,6 +273,8 @@ def _code_allowed(query: Query, span: Span, origin: str) -> bool:
     if origin == "code3":
         return upper or (key not in UNSAFE_ALPHA3 and (whole or own_part))
     # postal abbreviations and ISO subdivision code suffixes
+    if origin == "sub_code":
+        return upper and later
     if key in LOWER_WORD_CODES and not upper:
         return False
     if len(key) <= 3:

@@ -1,0 +1,169 @@
+"""Command line interface. Each command parses options, calls one library
+function and formats its result; errors become ``Error: …`` plus a hint."""
+
+from __future__ import annotations
+
+import functools
+import json
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+from rich.console import Console
+from rich.table import Table
+
+from .errors import GeonormError
+
+app = typer.Typer(help="Resolve free-text location fields to ISO 3166 places, offline.",
+                  no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False)
+gazetteer_app = typer.Typer(help="Build or inspect the compiled place index.", no_args_is_help=True)
+app.add_typer(gazetteer_app, name="gazetteer")
+
+err = Console(stderr=True, highlight=False)
+out = Console(highlight=False)
+
+AcceptOpt = Annotated[float, typer.Option("--accept", min=0.0, max=1.0,
+                                          help="Confidence needed for status 'matched' (0-1).")]
+CacheOpt = Annotated[Optional[Path], typer.Option("--cache", envvar="GEONORM_CACHE",
+                                                  help="SQLite cache file (default: in the user data folder).")]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="No progress messages.")]
+
+
+def _say(quiet: bool):
+    if quiet or not sys.stderr.isatty():
+        return lambda msg: err.print(msg) if not quiet and "first use" in msg else None
+    return lambda msg: err.print(f"[dim]{msg}[/dim]")
+
+
+def handle_errors(fn):
+    """Turn the library's errors into a message, a hint and exit code 1."""
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except GeonormError as exc:
+            err.print(f"Error: {exc.message}", markup=False)
+            if exc.hint:
+                err.print(f"Hint: {exc.hint}", markup=False)
+            raise typer.Exit(1) from None
+
+    return wrapper
+
+
+@app.command()
+@handle_errors
+def lookup(
+    text: Annotated[list[str], typer.Argument(help="One or more location strings.")],
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON instead of a table.")] = False,
+    accept: AcceptOpt = 0.8,
+    quiet: QuietOpt = False,
+) -> None:
+    """Resolve location strings given on the command line."""
+    from .resolver import Resolver
+
+    resolver = Resolver(accept=accept, progress=_say(quiet))
+    results = [(t, resolver.resolve(t)) for t in text]
+    if as_json:
+        payload = [{"text": t, **{k: v for k, v in r.to_dict().items() if k not in ("evidence", "score")}}
+                   for t, r in results]
+        out.print_json(json.dumps(payload, ensure_ascii=False))
+        return
+    table = Table(show_lines=False)
+    for col in ("text", "status", "country", "subdivision", "city", "confidence", "reason", "candidates"):
+        table.add_column(col, overflow="fold")
+    for t, r in results:
+        cands = "; ".join(f"{c.label()} ({c.score:.2f})" for c in r.candidates[:3])
+        table.add_row(t, r.status.value, r.country, r.subdivision, r.city,
+                      f"{r.confidence:.2f}" if r.country else "", r.reason.value, cands)
+    out.print(table)
+
+
+@app.command()
+@handle_errors
+def clean(
+    input: Annotated[str, typer.Argument(help="CSV file to clean ('-' for stdin).")],
+    column: Annotated[str, typer.Option("--column", "-c", help="Name of the location column.")],
+    output: Annotated[str, typer.Option("--out", "-o", help="Where to write the cleaned CSV ('-' for stdout).")],
+    cache: CacheOpt = None,
+    accept: AcceptOpt = 0.8,
+    prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the added columns.")] = "geo_",
+    encoding: Annotated[str, typer.Option("--encoding", help="Text encoding of the input.")] = "utf-8-sig",
+    quiet: QuietOpt = False,
+) -> None:
+    """Append geo columns to every row of a CSV file, in input order."""
+    from .batch import clean_file
+    from .cache import Cache
+
+    summary = clean_file(input, column, output, cache=Cache(cache), accept=accept, prefix=prefix,
+                         encoding=encoding, progress=_say(quiet))
+    if not quiet:
+        _print_summary(summary)
+
+
+def _print_summary(summary) -> None:
+    shares = summary.to_dict()["status_share"]
+    parts = ", ".join(f"{k} {v:,} ({shares[k]:.1%})" for k, v in summary.status.items())
+    err.print(f"{summary.rows:,} rows, {summary.distinct:,} distinct strings "
+              f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}", markup=False)
+    if summary.output and summary.output != "-":
+        err.print(f"wrote {summary.output}", markup=False)
+
+
+@app.command()
+@handle_errors
+def demo(
+    out_dir: Annotated[Path, typer.Option("--out", help="Folder for the demo outputs.")] = Path("geonorm-demo"),
+    quiet: QuietOpt = False,
+) -> None:
+    """Clean the bundled demo member list and print a summary."""
+    from .demo import run_demo
+
+    result = run_demo(out_dir, progress=_say(quiet))
+    _print_summary(result["summary"])
+    table = Table(title="Top countries (matched rows)")
+    table.add_column("country")
+    table.add_column("rows", justify="right")
+    for cc, n in result["top_countries"]:
+        table.add_row(cc, f"{n:,}")
+    out.print(table)
+    for label, path in result["files"].items():
+        out.print(f"{label}: {path}", markup=False)
+
+
+@gazetteer_app.command("build")
+@handle_errors
+def gazetteer_build(
+    path: Annotated[Optional[Path], typer.Option("--path", help="Where to write the index.")] = None,
+) -> None:
+    """(Re)build the place index from the installed packages."""
+    from .index import build_index
+
+    built = build_index(path, progress=lambda m: err.print(m, markup=False))
+    out.print(str(built), markup=False)
+
+
+@gazetteer_app.command("info")
+@handle_errors
+def gazetteer_info(
+    path: Annotated[Optional[Path], typer.Option("--path", help="Index file to describe.")] = None,
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
+) -> None:
+    """Describe the compiled place index: version, sources, counts."""
+    from .index import PlaceIndex, default_index_path
+
+    p = path or default_index_path()
+    idx = PlaceIndex(p)
+    meta = {"path": str(p), "size_mb": round(p.stat().st_size / 1e6, 1), **idx.meta}
+    if as_json:
+        out.print_json(json.dumps(meta, ensure_ascii=False))
+        return
+    table = Table(show_header=False)
+    for k, v in meta.items():
+        table.add_row(k, str(v))
+    out.print(table)
+
+
+def main() -> None:  # pragma: no cover
+    app()

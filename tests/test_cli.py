@@ -1,0 +1,115 @@
+"""Commands through typer's CliRunner: output, exact error text and exit codes."""
+
+from __future__ import annotations
+
+import csv
+import json
+
+from typer.testing import CliRunner
+
+from geonorm.cli import app
+
+runner = CliRunner()
+
+
+def _write(path, rows):
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        csv.writer(fh, lineterminator="\n").writerows(rows)
+
+
+def test_lookup_json():
+    r = runner.invoke(app, ["lookup", "Lyon", "austin tx", "--json"])
+    assert r.exit_code == 0, r.output
+    data = json.loads(r.stdout)
+    assert [d["country"] for d in data] == ["FR", "US"]
+    assert data[1]["subdivision"] == "US-TX"
+
+
+def test_lookup_table_lists_candidates():
+    r = runner.invoke(app, ["lookup", "Lisbon / Berlin"])
+    assert r.exit_code == 0
+    assert "several_countries" in r.stdout and "review" in r.stdout
+
+
+def test_clean_appends_columns_in_order(tmp_path):
+    src, dst = tmp_path / "in.csv", tmp_path / "out.csv"
+    _write(src, [["id", "where", "note"], ["1", "München", "007"], ["2", "", "1e5"], ["3", "localhost", "TRUE"],
+                 ["4", "München", ""]])
+    r = runner.invoke(app, ["clean", str(src), "--column", "where", "--out", str(dst),
+                            "--cache", str(tmp_path / "c.sqlite")])
+    assert r.exit_code == 0, r.output
+    rows = list(csv.reader(open(dst, encoding="utf-8", newline="")))
+    assert rows[0] == ["id", "where", "note", "geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon",
+                       "geo_confidence", "geo_reason", "geo_status"]
+    assert [r[:3] for r in rows[1:]] == [["1", "München", "007"], ["2", "", "1e5"], ["3", "localhost", "TRUE"],
+                                         ["4", "München", ""]]
+    assert rows[1][3:6] == ["DE", "DE-BY", "Munich"]
+    assert rows[2][-1] == "not_a_place" and rows[3][-1] == "not_a_place"
+
+
+def test_second_run_answers_from_cache(tmp_path):
+    src = tmp_path / "in.csv"
+    _write(src, [["loc"], ["Paris"], ["paris "], ["Tokyo"]])
+    args = ["clean", str(src), "--column", "loc", "--out", str(tmp_path / "o.csv"), "--cache", str(tmp_path / "c.db")]
+    first = runner.invoke(app, args)
+    second = runner.invoke(app, args)
+    assert "0 from the cache" in first.stderr
+    assert "2 distinct strings (2 from the cache)" in second.stderr
+
+
+def test_missing_column_lists_columns(tmp_path):
+    src = tmp_path / "in.csv"
+    _write(src, [["id", "location_text"], ["1", "Oslo"]])
+    r = runner.invoke(app, ["clean", str(src), "--column", "location", "--out", str(tmp_path / "o.csv"),
+                            "--cache", str(tmp_path / "c.db")])
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: column 'location' is not in {src}; its columns are: id, location_text\n"
+        "Hint: did you mean --column 'location_text'? pass the name of the location column with --column\n"
+    )
+    assert not (tmp_path / "o.csv").exists()
+
+
+def test_missing_file(tmp_path):
+    r = runner.invoke(app, ["clean", str(tmp_path / "nope.csv"), "--column", "x", "--out", str(tmp_path / "o.csv")])
+    assert r.exit_code == 1
+    assert r.stderr.startswith(f"Error: input file {tmp_path / 'nope.csv'} does not exist\n")
+
+
+def test_empty_file(tmp_path):
+    src = tmp_path / "empty.csv"
+    src.write_text("")
+    r = runner.invoke(app, ["clean", str(src), "--column", "x", "--out", str(tmp_path / "o.csv"),
+                            "--cache", str(tmp_path / "c.db")])
+    assert r.exit_code == 1
+    assert r.stderr == f"Error: {src} is empty\nHint: pass a CSV file with a header line\n"
+
+
+def test_wrong_encoding_suggests_option(tmp_path):
+    src = tmp_path / "latin.csv"
+    src.write_bytes("loc\nS\xe3o Paulo\n".encode("latin-1"))
+    r = runner.invoke(app, ["clean", str(src), "--column", "loc", "--out", str(tmp_path / "o.csv"),
+                            "--cache", str(tmp_path / "c.db")])
+    assert r.exit_code == 1
+    assert "--encoding" in r.stderr
+    ok = runner.invoke(app, ["clean", str(src), "--column", "loc", "--out", str(tmp_path / "o.csv"),
+                             "--cache", str(tmp_path / "c.db"), "--encoding", "latin-1"])
+    assert ok.exit_code == 0, ok.output
+
+
+def test_accept_out_of_range_is_refused():
+    r = runner.invoke(app, ["lookup", "Paris", "--accept", "1.5"])
+    assert r.exit_code == 2
+
+
+def test_gazetteer_info():
+    r = runner.invoke(app, ["gazetteer", "info", "--json"])
+    assert r.exit_code == 0, r.output
+    meta = json.loads(r.stdout)
+    assert int(meta["places_city"]) > 200_000 and meta["index_version"] == "1"
+
+
+def test_every_command_has_help():
+    for args in (["lookup"], ["clean"], ["demo"], ["gazetteer", "build"], ["gazetteer", "info"]):
+        r = runner.invoke(app, [*args, "--help"])
+        assert r.exit_code == 0 and len(r.stdout) > 100

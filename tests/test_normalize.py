@@ -1,0 +1,68 @@
+"""The normaliser: flags, separators, noise, postcodes; idempotent and total."""
+
+from __future__ import annotations
+
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+from geonorm.normalize import NoisePhrases, extract_flags, fold, normalize
+
+
+def test_fold_keeps_non_latin_scripts_and_folds_accents():
+    assert fold("  Zürich ") == "zurich"
+    assert fold("Łódź") == "lodz"
+    assert fold("Москва") == "москва"
+    assert fold("मुंबई") == "मुंबई"  # combining vowel signs are not accents
+    assert fold("Nordrhein-Westfalen") == "nordrhein westfalen"
+
+
+def test_dotted_acronyms_keep_their_dots():
+    assert fold("L.A.") == "l.a."
+    assert fold("St. Petersburg") == "st petersburg"
+
+
+def test_regional_indicator_flags_become_alpha2():
+    # Unicode TR51: a flag is a pair of regional indicator symbols spelling the ISO code.
+    text, codes = extract_flags("Berlin \U0001F1E9\U0001F1EA")
+    assert codes == ["DE"] and "Berlin" in text
+
+
+def test_subdivision_flag_tag_sequence():
+    # Unicode TR51 tag sequence: black flag + tag letters "gbsct" + cancel tag.
+    scotland = "\U0001F3F4" + "".join(chr(0xE0000 + ord(c)) for c in "gbsct") + "\U000E007F"
+    assert normalize(scotland).flags == ("GB-SCT",)
+
+
+def test_other_emoji_are_dropped():
+    q = normalize("📍Medellín 🌞")
+    assert [p.key for p in q.parts] == ["medellin"]
+
+
+def test_separators_split_parts():
+    q = normalize("Vienna, Austria / Bratislava | Slovakia; Brno (CZ) · Graz")
+    assert [p.key for p in q.parts] == ["vienna", "austria", "bratislava", "slovakia", "brno", "cz", "graz"]
+
+
+def test_noise_phrases_removed_by_position():
+    noise = NoisePhrases(prefix=["based in", "living in"], suffix=["area", "for now"], anywhere=["currently"])
+    q = normalize("Currently living in Greater Oslo area for now", noise)
+    assert [p.key for p in q.parts] == ["greater oslo"]
+    assert q.had_noise
+
+
+def test_postcodes_recognised_by_format():
+    assert normalize("EH8 9YL").postcodes == ("GB:eh8",)
+    assert normalize("M5V 3L9").postcodes == ("CA:m5v",)
+    assert "75011" in normalize("75011 Paris").postcodes
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.text())
+def test_normaliser_is_idempotent_and_never_raises(text):
+    first = normalize(text)
+    assert normalize(first.key).key == first.key
+
+
+@given(st.one_of(st.none(), st.integers(), st.floats(allow_nan=True)))
+def test_non_strings_become_queries(value):
+    assert isinstance(normalize(value).key, str)
