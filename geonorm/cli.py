@@ -71,12 +71,12 @@ def lookup(
         out.print_json(json.dumps(payload, ensure_ascii=False))
         return
     table = Table(show_lines=False)
-    for col in ("text", "status", "country", "subdivision", "city", "confidence", "reason", "candidates"):
+    for col in ("text", "status", "place", "confidence", "reason", "candidates"):
         table.add_column(col, overflow="fold")
     for t, r in results:
+        place = " / ".join(x for x in (r.city, r.subdivision, r.country) if x)
         cands = "; ".join(f"{c.label()} ({c.score:.2f})" for c in r.candidates[:3])
-        table.add_row(t, r.status.value, r.country, r.subdivision, r.city,
-                      f"{r.confidence:.2f}" if r.country else "", r.reason.value, cands)
+        table.add_row(t, r.status.value, place, f"{r.confidence:.2f}" if r.country else "", r.reason.value, cands)
     out.print(table)
 
 

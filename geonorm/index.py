@@ -37,8 +37,8 @@ __all__ = ["INDEX_VERSION", "PlaceIndex", "Place", "NameHit", "build_index", "de
 INDEX_VERSION = 1
 
 # Name origins, strongest first. Stored as small integers.
-ORIGINS = ("name", "alias", "code2", "code3", "sub_code", "postal", "alt", "translation",
-           "lower_sub", "adjective", "region")
+ORIGINS = ("name", "alias", "code2", "code3", "postal", "sub_code", "alt", "translation",
+           "lower_sub", "adjective", "region", "short")
 ORIGIN_ID = {o: i for i, o in enumerate(ORIGINS)}
 
 Progress = Callable[[str], None]
@@ -104,7 +104,7 @@ def _good_alt_name(name: str) -> bool:
     letters = sum(c.isalpha() for c in name)
     if letters < 2:
         return False
-    if letters < 3 and all(ord(c) < 0x2E80 for c in name):  # short Latin/Cyrillic names
+    if letters < 4 and all(ord(c) < 0x0250 for c in name):  # short Latin names are mostly codes
         return False
     return True
 
@@ -267,7 +267,7 @@ class _Builder:
     def __init__(self, progress: Progress) -> None:
         self.progress = progress
         self.places: list[tuple] = []
-        self.names: dict[tuple[str, int], int] = {}
+        self.names: set[tuple[str, int, int]] = set()
         self.fuzzy: set[tuple[str, int]] = set()
 
     def add_place(self, kind: str, cc: str, sub: str, name: str, lat: float | None,
@@ -280,10 +280,7 @@ class _Builder:
         key = fold(text)
         if not key:
             return
-        o = ORIGIN_ID[origin]
-        prev = self.names.get((key, pid))
-        if prev is None or o < prev:
-            self.names[(key, pid)] = o
+        self.names.add((key, pid, ORIGIN_ID[origin]))
         if fuzzy and len(key) >= 5 and key.isascii():
             self.fuzzy.add((key, pid))
 
@@ -378,13 +375,17 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         extra = iso2_data.get(s.country_code, {}).get(s.code, {})
         names = set(_name_variants(s.name))
         other = extra.get("localOtherName") or ""
+        abbreviations = set()
         for chunk in other.split(","):
             chunk = chunk.split("(")[0].strip()
-            if chunk:
+            if chunk and chunk.replace(".", "").isupper() and len(chunk.replace(".", "")) <= 4:
+                abbreviations.add(chunk)  # "NSW", "ALA": abbreviations, read like postal codes
+            elif chunk:
                 names.add(chunk)
         if extra.get("name"):
             names.add(extra["name"])
-        top_subs[s.country_code][s.code] = {"names": names, "latLng": extra.get("latLng"), "name": s.name}
+        top_subs[s.country_code][s.code] = {"names": names, "latLng": extra.get("latLng"), "name": s.name,
+                                            "abbreviations": abbreviations}
 
     say("reading GeoNames places (≥500 people)")
     cities = list(gc.get_cities().values())
@@ -403,6 +404,8 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
             sub_pid[code] = pid
             for n in s["names"]:
                 b.add_name(n, pid, "name", fuzzy=True)
+            for n in s["abbreviations"]:
+                b.add_name(n, pid, "postal")
             suffix = code.split("-", 1)[1]
             if suffix.isalpha() and len(suffix) >= 2:
                 b.add_name(suffix, pid, "sub_code")
@@ -413,6 +416,9 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
             if top in sub_pid:
                 for n in _name_variants(s.name):
                     b.add_name(n, sub_pid[top], "lower_sub")
+                suffix = s.code.split("-", 1)[1]
+                if suffix.isalpha() and len(suffix) >= 2:
+                    b.add_name(suffix, sub_pid[top], "sub_code")
     for lang in languages:
         try:
             tr = gettext.translation("iso3166-2", locales_dir, languages=[lang])
@@ -434,9 +440,13 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         gid_pid[c["geonameid"]] = pid
         big = pop >= 15000
         b.add_name(c["name"], pid, "name", fuzzy=big)
+        main_words = set(fold(c["name"]).split())
         for alt in c.get("alternatenames") or ():
             if _good_alt_name(alt):
-                b.add_name(alt, pid, "alt", fuzzy=big and pop >= 100_000)
+                # A short form of a longer name ("Morelos" for "Ecatepec de Morelos") is weak.
+                words = set(fold(alt).split())
+                short = bool(words) and words < main_words
+                b.add_name(alt, pid, "short" if short else "alt", fuzzy=big and pop >= 100_000 and not short)
 
     say("reading curated tables from gazetteer/")
     city_by_name: dict[tuple[str, str], list[tuple[int, int, str]]] = defaultdict(list)
@@ -459,13 +469,16 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
                 missing.append(f"aliases.csv: unknown subdivision {sub}")
                 continue
             if row.get("kind") == "region_in_country":
-                pid = b.add_place("area", cc, sub, row["text"], None, None, 0, None)
+                # A named area weighs like the subdivision it lies in.
+                pid = b.add_place("area", cc, sub, row["text"], None, None, sub_pop.get(sub, 0), None)
                 b.add_name(row["text"], pid, "alias")
             else:
                 b.add_name(row["text"], sub_pid[sub], "alias")
         elif cc in country_pid:
             if row.get("kind") == "region_in_country":
-                pid = b.add_place("area", cc, "", row["text"], None, None, 0, None)
+                # Spanning subdivisions: weighs like a fifth of its country.
+                area_pop = int(gn_countries.get(cc, {}).get("population") or 0) // 5
+                pid = b.add_place("area", cc, "", row["text"], None, None, area_pop, None)
                 b.add_name(row["text"], pid, "alias")
             else:
                 b.add_name(row["text"], country_pid[cc], "alias")
@@ -513,7 +526,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         """
     )
     db.executemany("INSERT INTO place VALUES (?,?,?,?,?,?,?,?,?)", b.places)
-    db.executemany("INSERT INTO name VALUES (?,?,?)", ((k, p, o) for (k, p), o in b.names.items()))
+    db.executemany("INSERT INTO name VALUES (?,?,?)", sorted(b.names))
     db.executemany("INSERT INTO fuzzy VALUES (?,?,?)", ((k[0], k, p) for k, p in sorted(b.fuzzy)))
     db.executemany("INSERT OR IGNORE INTO nonplace VALUES (?,?)", nonplace_rows)
     db.executemany("INSERT INTO noise VALUES (?,?)", noise_rows)

@@ -48,7 +48,7 @@ _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _STREET_WORDS = frozenset(
     "street rd road ave avenue blvd boulevard lane ln dr drive apt suite unit plot floor "
     "rua av avenida calle carrer via viale piazza rue chemin allee strasse str ul ulica prospekt "
-    "nagar block sector ku chome cross marg house flat po box".split()
+    "block sector ku chome marg flat box".split()
 )
 # "St" ends a street name ("Baggot St") but starts a saint's name ("St Helier").
 _STREET_SUFFIX_ONLY = frozenset({"st", "str"})
@@ -78,6 +78,7 @@ def fold(text: str) -> str:
     or Devanagari marks would merge distinct names.
     """
     text = unicodedata.normalize("NFKC", text).casefold()
+    text = text.replace("\u200c", "").replace("\u200d", "")  # zero-width (non-)joiners join
     text = "".join(_fold_char(c) for c in text)
     # Dotted acronyms (L.A., U.K., N.L.) keep their dots: "l.a." is not "la".
     text = _ACRONYM.sub(lambda m: m.group(0).replace(".", "\x00"), text)
@@ -167,15 +168,17 @@ class NoisePhrases:
             keys = sorted({fold(p) for p in phrases if fold(p)}, key=len, reverse=True)
             return "|".join(re.escape(k) for k in keys) or r"(?!x)x"
 
-        self._prefix = re.compile(rf"^(?:(?:{alternation(prefix)})(?:\s+|$))+")
-        self._suffix = re.compile(rf"(?:(?:^|\s+)(?:{alternation(suffix)}))+$")
+        self._prefix = re.compile(rf"^(?:(?:{alternation(prefix)})\s+)+(?=\S)")
+        self._suffix = re.compile(rf"(?<=\S)(?:\s+(?:{alternation(suffix)}))+$")
         self._anywhere = re.compile(rf"(?:^|\s)(?:{alternation(anywhere)})(?=\s|$)")
 
     def strip(self, key: str) -> str:
+        """Remove noise around a part; a part that is nothing but noise stays as it is
+        ("AU" is Australia's code, not the French article)."""
         previous = None
         while previous != key:
             previous = key
-            key = self._anywhere.sub(" ", key).strip()
+            key = self._anywhere.sub(" ", key).strip() or key
             key = self._prefix.sub("", key).strip()
             key = self._suffix.sub("", key).strip()
         return key
@@ -188,7 +191,7 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     """Normalise one raw value. Never raises; non-strings become empty queries."""
     if not isinstance(raw, str):
         raw = "" if raw is None else str(raw)
-    text = unicodedata.normalize("NFKC", raw)
+    text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
     text, flags = extract_flags(text)
     text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
     text = text.replace("#", " ").replace("@", " ").replace("\"", " ").replace("!", " ")

@@ -200,28 +200,27 @@ class Resolver:
         by_span: dict[tuple[int, int], Mention] = {}
         for stage in self.name_stages:
             for m in stage.resolve(query, spans):
-                key = (m.part, m.start)
+                key = (m.part, m.start, m.text)
                 if key in by_span:
                     by_span[key].readings.extend(m.readings)
                 else:
                     by_span[key] = m
         covered = {(s.part, i) for s in spans for i in range(s.start, s.end)
-                   if (s.part, s.start) in by_span}
+                   if (s.part, s.start, s.key) in by_span}
         if len(spans) == 1 and spans[0].key == query.key and by_span:
             covered = {(pi, i) for pi, p in enumerate(query.parts) for i in range(len(p.tokens))}
         # Words explained by nothing: try spelling-tolerant matching on them, and on
         # whole parts whose only exact readings are small places.
-        weak_parts = {pi for pi in range(len(query.parts))
-                      if not any(m.part == pi and max(r.place.pop for r in m.readings) >= 15000
-                                 or m.part == pi and any(_is_container_reading(r) for r in m.readings)
-                                 for m in by_span.values())}
+        weak_parts = {m.part for m in by_span.values()} - {
+            m.part for m in by_span.values()
+            if max(r.place.pop for r in m.readings) >= 15000 or any(_is_container_reading(r) for r in m.readings)}
         for pi in weak_parts:
             covered -= {(pi, i) for i in range(len(query.parts[pi].tokens))}
         fuzzy = self.fuzzy.resolve(query, covered)
         for fm in fuzzy:
             for key in [k for k, m in by_span.items() if k[0] == fm.part and k[0] in weak_parts]:
                 del by_span[key]
-            by_span[(fm.part, fm.start)] = fm
+            by_span[(fm.part, fm.start, fm.text)] = fm
         found += sorted(by_span.values(), key=lambda m: (m.part, m.start))
         return self._prune(found)
 
@@ -236,15 +235,22 @@ class Resolver:
         """
         for m in mentions:
             named = {r.place.cc for r in m.readings
-                     if r.place.kind == "country" and r.origin in ("name", "alias", "translation", "flag")}
+                     if r.place.kind == "country" and r.origin in ("name", "alias", "flag")}
             if named:
                 m.readings = [r for r in m.readings if r.place.cc in named or (
-                    r.place.kind != "city" or r.place.pop >= 1_000_000) and r.origin != "lower_sub"]
+                    r.place.kind != "city" or r.place.pop >= 1_000_000)
+                    and r.origin not in ("lower_sub", "translation", "alt", "short")]
+            if any(r.origin == "code3" for r in m.readings):
+                m.readings = [r for r in m.readings if r.origin not in ("postal", "sub_code")]
             if any(r.place.kind in ("region", "area") for r in m.readings):
                 m.readings = [r for r in m.readings if r.place.kind != "city" or r.place.pop >= 100_000]
+            if any(r.origin == "alias" for r in m.readings):
+                # A curated nickname beats a code of the same letters (KL, LA, DC).
+                m.readings = [r for r in m.readings if r.origin not in ("code2", "code3", "postal", "sub_code")]
             if len(mentions) > 1:
                 m.readings = [r for r in m.readings
-                              if not (r.place.kind == "city" and r.origin == "alt" and r.place.pop < 15_000)]
+                              if not (r.place.kind == "city" and r.origin in ("alt", "short")
+                                      and r.place.pop < 15_000)]
         return [m for m in mentions if m.readings]
 
     # -- decision -----------------------------------------------------------
@@ -280,6 +286,8 @@ class Resolver:
                 m.readings = [r for r in m.readings if r.place.id in gids]
                 g.mentions.append(m)
                 continue
+            if all(r.origin in ("postal", "sub_code") for r in m.readings):
+                continue  # an abbreviation qualifies what precedes it; one that fits nothing is noise
             groups.append(_Group([m]))
         return groups, global_
 
@@ -344,9 +352,19 @@ class Resolver:
         dists = [t for t in dists if t[1]]
         if not dists:
             return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
-        # Drop weak stray places (a street word that happens to be a hamlet's name).
+        # A nationality word next to a place is who the person is, not where
+        # ("proud Brazilian in Lisbon"): it qualifies, it does not add a place.
         if len(dists) > 1:
-            strong = [t for t in dists if max(r.place.pop for rs in t[2] for r in rs) >= 5000
+            placed = [t for t in dists if not all(r.origin == "adjective" for rs in t[2] for r in rs)]
+            dists = placed or dists
+        # A part that could be anywhere ("Centro": a region in a dozen countries)
+        # says nothing next to a part that is clear.
+        if len(dists) > 1 and any(max(d.values()) >= 0.9 for _, d, _ in dists):
+            dists = [t for t in dists if max(t[1].values()) >= 0.5]
+        # Drop weak stray places (a word that happens to be a town's name) when
+        # the rest of the text names a country or a larger place.
+        if len(dists) > 1:
+            strong = [t for t in dists if max(r.place.pop for rs in t[2] for r in rs) >= 20000
                       or any(_is_container_reading(r) for rs in t[2] for r in rs)]
             dists = strong or dists
         countries = set().union(*(d.keys() for _, d, _ in dists))
@@ -392,6 +410,7 @@ class Resolver:
         sources: set[str] = set()
         kinds: set[str] = set()
         ambiguous_points = False
+        undetermined = False
         for g, d, kept in dists:
             group_points = []
             for m, rs in zip(g.mentions + qualifiers, kept):
@@ -403,19 +422,27 @@ class Resolver:
                 cont = [r for r in rs_c if r.place.kind in ("subdivision", "area") and r.place.sub]
                 if cont and all(_is_container_reading(r) for r in rs):
                     subs_named |= {r.place.sub for r in cont}
-                cities = [r for r in rs_c if r.place.kind == "city"]
-                if cities and (m.is_point or not any(_is_container_reading(r) for r in rs_c)):
-                    group_points.append(max(cities, key=lambda r: r.weight))
+                point = self._point(rs_c)
+                named = [r for r in rs_c if r.place.kind == "subdivision"
+                         and r.origin in ("name", "translation", "alias", "postal")]
+                named_subs = {r.place.sub for r in named}
+                rivals = [r.place.pop for r in named if point is not None and r.place.sub != point.place.sub]
+                if point is not None and rivals and point.place.sub not in named_subs \
+                        and point.place.pop < max(rivals):
+                    # "Washington": the state, or the city in another subdivision. Only the
+                    # country is determined.
+                    undetermined = True
+                    continue
+                if point is None and len(dists) == 1:
+                    subs_named |= named_subs
+                if point is not None:
+                    group_points.append(point)
                     if len({r.place.cc for r in rs if r.place.kind == "city"}) > 1:
                         ambiguous_points = True
-                elif cities:
-                    # A container name that is also a city: the city when it is most of it.
-                    conts = [r for r in rs_c if _is_container_reading(r)]
-                    big = max(cities, key=lambda r: r.place.pop)
-                    if conts and big.place.pop >= 0.5 * max(max(c.place.pop for c in conts), 1):
-                        group_points.append(big)
             if group_points:
                 points.append(max(group_points, key=lambda r: r.weight))
+        if undetermined:
+            points, subs_named = [], set()
         if len(dists) == 1 and len(points) == 1:
             city = points[0].place
             if not subs_named or city.sub in subs_named:
@@ -434,6 +461,8 @@ class Resolver:
         if res.country != top:
             res.country = top
         # Reason, most specific evidence first.
+        in_top = [r for _, _, kept in dists for rs in kept for r in rs if r.place.cc == top]
+        heaviest = max(in_top, key=lambda r: r.weight, default=None)
         if len(dists) > 1:
             res.reason = Reason.SAME_COUNTRY_PLACES
         elif "fuzzy" in sources:
@@ -441,11 +470,9 @@ class Resolver:
         elif "flag" in sources and not points:
             res.reason = Reason.FLAG
         elif points:
-            if "alias" in origins and not any(r.origin != "alias" for r in points) is False:
+            if any(r.origin == "alias" for r in points):
                 res.reason = Reason.NICKNAME
-            elif any(r.origin == "alias" for r in points):
-                res.reason = Reason.NICKNAME
-            elif len([m for m in dists[0][0].mentions + qualifiers]) > 1:
+            elif len(dists[0][0].mentions + qualifiers) > 1:
                 res.reason = Reason.CITY_WITH_CONTEXT
             elif ambiguous_points:
                 res.reason = Reason.CITY_BY_SIZE
@@ -453,17 +480,39 @@ class Resolver:
                 res.reason = Reason.CITY
         elif "postcode" in sources:
             res.reason = Reason.POSTCODE
-        elif "country" in kinds and not (kinds & {"subdivision", "area"}):
-            res.reason = Reason.COUNTRY_CODE if origins & {"code2", "code3"} and not origins & {
-                "name", "translation", "alias"} else Reason.COUNTRY_NAME
-        elif "area" in kinds:
+        elif heaviest is not None and heaviest.place.kind == "country":
+            res.reason = (Reason.COUNTRY_CODE if heaviest.origin in ("code2", "code3") else Reason.COUNTRY_NAME)
+        elif heaviest is not None and heaviest.place.kind == "area":
             res.reason = Reason.NAMED_AREA
-        elif origins == {"alias"}:
+        elif heaviest is not None and heaviest.origin == "alias":
             res.reason = Reason.NICKNAME
         else:
             res.reason = Reason.SUBDIVISION
         if len(res.evidence) > 1 and max(res.evidence.values()) < 0.9:
             res.reason = Reason.AMBIGUOUS if res.reason not in (Reason.CITY_BY_SIZE,) else res.reason
+
+    @staticmethod
+    def _point(readings: list[Reading]) -> Reading | None:
+        """The city a mention names, if it names one.
+
+        A country name is a city only when the city is most of it (Singapore,
+        not Kosovo Polje for "Kosovo"). A subdivision named like its capital is
+        the city unless the city is a small part of it (Lisbon and Porto are the
+        cities; Quebec is the province; California, MD is not California): threshold 10% of
+        the population.
+        """
+        cities = [r for r in readings if r.place.kind == "city"]
+        if not cities:
+            return None
+        best = max(cities, key=lambda r: r.weight)
+        countries = [r for r in readings if r.place.kind == "country"]
+        if countries and best.place.pop < 0.5 * max(c.place.pop for c in countries):
+            return None
+        subs = [r for r in readings if r.place.kind in ("subdivision", "area")
+                and r.origin in ("name", "translation", "alias")]
+        if subs and (best.weight < 0.1 * max(r.weight for r in subs) or best.origin == "short"):
+            return None  # "Morelos" is the state, not Ecatepec de Morelos
+        return best
 
     @staticmethod
     def _score(p: float, res: Resolution, query: Query, dists) -> float:

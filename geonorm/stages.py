@@ -81,7 +81,7 @@ class Span:
 # and curated names over alternate spellings and translations).
 ORIGIN_WEIGHT = {"name": 1.0, "alias": 5.0, "code2": 1.0, "code3": 1.0, "sub_code": 0.8,
                  "postal": 1.0, "translation": 0.8, "alt": 0.3, "lower_sub": 0.05,
-                 "adjective": 0.6, "region": 1.0}
+                 "adjective": 0.6, "region": 1.0, "short": 0.2}
 # A country named in the text is rarely meant as anything else.
 KIND_WEIGHT = {"country": 3.0, "subdivision": 1.0, "city": 1.0, "area": 1.0, "region": 1.0}
 MIN_WEIGHT = 300.0  # a floor so places with unknown population still count
@@ -120,17 +120,19 @@ class Segmenter:
         if part.street:
             return []
         words = [t.key for t in part.tokens]
-        # The part as typed, before noise removal, may itself be a name ("Bay Area").
-        if part.full_key != part.key and len(part.full_key.split()) > 1:
-            hits = self._lookup(part.full_key)
-            if hits:
-                return [Span(pi, 0, len(words), part.full_key, hits)]
+        # The part as typed, before noise removal, may itself be a name ("Bay Area"),
+        # and so may a long part ("Các Tiểu Vương quốc Ả Rập Thống nhất").
+        for key in (part.full_key, part.key):
+            if len(key.split()) > 1:
+                hits = self._lookup(key)
+                if hits:
+                    return [Span(pi, 0, len(words), key, hits)]
         spans: list[Span] = []
         i = 0
         while i < len(words):
             found = None
             for j in range(min(len(words), i + self.max_words), i, -1):
-                if j - i == 1 and words[i] in STOPWORDS:
+                if j - i == 1 and words[i] in STOPWORDS and len(words) > 1:
                     continue
                 key = " ".join(words[i:j])
                 hits = self._lookup(key)
@@ -176,6 +178,8 @@ class NotAPlaceStage:
             return "empty"
         if not query.has_letters:
             return "placeholder" if len(raw) <= 3 else "junk"
+        if query.flags:
+            return ""  # a flag is a place, whatever words surround it
         keys = {query.key, re.sub(r"[^\w\s]", " ", query.key).strip(), " ".join(p.key for p in query.parts)}
         keys |= {re.sub(r"\s+", " ", k).strip() for k in keys}
         for k in keys - {""}:
@@ -246,8 +250,13 @@ class _SpanStage:
         spans = self.segmenter.spans(query) if spans is None else spans
         out = []
         for span in spans:
-            readings = [Reading(h.place, h.origin, place_weight(h.place, h.origin))
-                        for h in span.hits if h.place.kind in self.kinds and self.allowed(query, span, h)]
+            best: dict[int, Reading] = {}  # one reading per place: its strongest allowed name
+            for h in span.hits:
+                if h.place.kind in self.kinds and self.allowed(query, span, h):
+                    r = Reading(h.place, h.origin, place_weight(h.place, h.origin))
+                    if h.place.id not in best or r.weight > best[h.place.id].weight:
+                        best[h.place.id] = r
+            readings = list(best.values())
             if readings:
                 out.append(Mention(span.key, span.part, span.start, readings))
         return out
@@ -258,7 +267,10 @@ def _typed(query: Query, span: Span) -> str:
     return " ".join(t.orig for t in part.tokens[span.start:span.end])
 
 
-def _code_allowed(query: Query, span: Span, origin: str) -> bool:
+BARE_POSTAL_COUNTRIES = frozenset({"US", "CA", "AU"})
+
+
+def _code_allowed(query: Query, span: Span, origin: str, country: str = "") -> bool:
     """Codes and abbreviations are read only where a person would write one."""
     typed = _typed(query, span)
     key = span.key.replace(".", "")
@@ -266,6 +278,8 @@ def _code_allowed(query: Query, span: Span, origin: str) -> bool:
     own_part = len(query.parts[span.part].tokens) == span.end - span.start
     later = span.part > 0 or span.start > 0
     upper = typed.replace(".", "").isupper()
+    if not typed.replace(".", "").isascii():
+        return False  # "Áo" is Austria in Vietnamese, not Angola's code
     if origin == "code2":
         if key in LOWER_WORD_CODES and not upper and not whole:
             return False
@@ -278,7 +292,9 @@ def _code_allowed(query: Query, span: Span, origin: str) -> bool:
     if key in LOWER_WORD_CODES and not upper:
         return False
     if len(key) <= 3:
-        return later or whole
+        # Alone, a short abbreviation is read as a state only where people write
+        # their state that way (US, Canada, Australia); elsewhere it is a country code.
+        return later or (whole and country in BARE_POSTAL_COUNTRIES)
     return True
 
 
@@ -296,7 +312,7 @@ class SubdivisionStage(_SpanStage):
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         if hit.origin in ("postal", "sub_code"):
-            return _code_allowed(query, span, hit.origin)
+            return _code_allowed(query, span, hit.origin, hit.place.cc)
         return True
 
 
@@ -306,7 +322,12 @@ class CityStage(_SpanStage):
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         # An alias for a city written in capitals (NYC, KL) is fine; a
         # two-letter alternate name is not.
-        return not (len(span.key.replace(".", "")) <= 2 and hit.origin == "alt")
+        if hit.origin == "alias":
+            return True
+        if len(span.key.replace(".", "")) <= 2:
+            # Two capitals are a code, not the village of "As"; two-letter alternate names are noise.
+            return hit.origin != "alt" and not _typed(query, span).isupper()
+        return True
 
 
 class FuzzyStage:
@@ -326,6 +347,8 @@ class FuzzyStage:
         out = []
         for pi, part in enumerate(query.parts):
             words = [t.key for t in part.tokens]
+            if part.street:
+                continue
             free = [i for i in range(len(words)) if (pi, i) not in covered and words[i] not in STOPWORDS]
             if not free:
                 continue

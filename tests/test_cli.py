@@ -26,7 +26,7 @@ def test_lookup_json():
 
 
 def test_lookup_table_lists_candidates():
-    r = runner.invoke(app, ["lookup", "Lisbon / Berlin"])
+    r = runner.invoke(app, ["lookup", "Lisbon / Berlin"], env={"COLUMNS": "200"})
     assert r.exit_code == 0
     assert "several_countries" in r.stdout and "review" in r.stdout
 
