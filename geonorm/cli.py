@@ -44,9 +44,9 @@ def handle_errors(fn):
         try:
             return fn(*args, **kwargs)
         except GeonormError as exc:
-            err.print(f"Error: {exc.message}", markup=False)
+            typer.echo(f"Error: {exc.message}", err=True)
             if exc.hint:
-                err.print(f"Hint: {exc.hint}", markup=False)
+                typer.echo(f"Hint: {exc.hint}", err=True)
             raise typer.Exit(1) from None
 
     return wrapper
@@ -105,10 +105,10 @@ def clean(
 def _print_summary(summary) -> None:
     shares = summary.to_dict()["status_share"]
     parts = ", ".join(f"{k} {v:,} ({shares[k]:.1%})" for k, v in summary.status.items())
-    err.print(f"{summary.rows:,} rows, {summary.distinct:,} distinct strings "
-              f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}", markup=False)
+    typer.echo(f"{summary.rows:,} rows, {summary.distinct:,} distinct strings "
+               f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}", err=True)
     if summary.output and summary.output != "-":
-        err.print(f"wrote {summary.output}", markup=False)
+        typer.echo(f"wrote {summary.output}", err=True)
 
 
 @app.command()

@@ -87,8 +87,13 @@ def fold(text: str) -> str:
     return _WS.sub(" ", text).strip(" -")
 
 
+_KEPT_SYMBOLS = frozenset("|+<>")  # separators, split on later
+
+
 def _is_dropped_symbol(ch: str) -> bool:
     """Emoji, pictographs and other symbols that never spell a place."""
+    if ch in _KEPT_SYMBOLS:
+        return False
     cat = unicodedata.category(ch)
     if cat in ("So", "Sk", "Sm", "Cs", "Co", "Cn", "Cf", "Cc") and ch not in "\n\t":
         return True

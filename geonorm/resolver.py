@@ -241,7 +241,9 @@ class Resolver:
                     r.place.kind != "city" or r.place.pop >= 1_000_000)
                     and r.origin not in ("lower_sub", "translation", "alt", "short")]
             if any(r.origin == "code3" for r in m.readings):
-                m.readings = [r for r in m.readings if r.origin not in ("postal", "sub_code")]
+                # Three capitals that are an ISO code: the country, not a town or a state.
+                m.readings = [r for r in m.readings if r.origin not in ("postal", "sub_code")
+                              and r.place.kind != "city"]
             if any(r.place.kind in ("region", "area") for r in m.readings):
                 m.readings = [r for r in m.readings if r.place.kind != "city" or r.place.pop >= 100_000]
             if any(r.origin == "alias" for r in m.readings):
@@ -303,9 +305,9 @@ class Resolver:
             ccs |= {c for c, s in SOVEREIGN.items() if s in ccs}
             if ccs:
                 allowed_cc = ccs if allowed_cc is None else (allowed_cc & ccs) or allowed_cc
-            subs = {r.place.sub for r in m.readings if r.place.kind == "subdivision"}
-            if subs and len(containers) > 0:
-                allowed_sub |= subs
+            heaviest = max(m.readings, key=lambda r: r.weight)
+            if heaviest.place.kind in ("subdivision", "area"):
+                allowed_sub |= {r.place.sub for r in m.readings if r.place.kind == "subdivision"}
         kept: list[list[Reading]] = []
         for m in mentions:
             rs = m.readings
@@ -420,21 +422,19 @@ class Resolver:
                     origins.add(r.origin)
                     kinds.add(r.place.kind)
                 cont = [r for r in rs_c if r.place.kind in ("subdivision", "area") and r.place.sub]
-                if cont and all(_is_container_reading(r) for r in rs):
+                heaviest_here = max(rs_c, key=lambda r: r.weight, default=None)
+                if cont and all(_is_container_reading(r) for r in rs) and heaviest_here is not None \
+                        and heaviest_here.place.kind != "country":
+                    # "Mexico" as a qualifier is the country, not also the State of Mexico.
                     subs_named |= {r.place.sub for r in cont}
-                point = self._point(rs_c)
-                named = [r for r in rs_c if r.place.kind == "subdivision"
-                         and r.origin in ("name", "translation", "alias", "postal")]
-                named_subs = {r.place.sub for r in named}
-                rivals = [r.place.pop for r in named if point is not None and r.place.sub != point.place.sub]
-                if point is not None and rivals and point.place.sub not in named_subs \
-                        and point.place.pop < max(rivals):
-                    # "Washington": the state, or the city in another subdivision. Only the
-                    # country is determined.
+                point, split = self._point(rs_c)
+                if split:
                     undetermined = True
                     continue
-                if point is None and len(dists) == 1:
-                    subs_named |= named_subs
+                if point is None and len(dists) == 1 and heaviest_here is not None \
+                        and heaviest_here.place.kind == "subdivision":
+                    subs_named |= {r.place.sub for r in rs_c if r.place.kind == "subdivision"
+                                   and r.origin in ("name", "translation", "alias", "postal")}
                 if point is not None:
                     group_points.append(point)
                     if len({r.place.cc for r in rs if r.place.kind == "city"}) > 1:
@@ -492,27 +492,41 @@ class Resolver:
             res.reason = Reason.AMBIGUOUS if res.reason not in (Reason.CITY_BY_SIZE,) else res.reason
 
     @staticmethod
-    def _point(readings: list[Reading]) -> Reading | None:
-        """The city a mention names, if it names one.
+    def _point(readings: list[Reading]) -> tuple[Reading | None, bool]:
+        """The city a mention names, if it names one; and whether it is torn
+        between a city and a subdivision elsewhere in the country.
 
         A country name is a city only when the city is most of it (Singapore,
         not Kosovo Polje for "Kosovo"). A subdivision named like its capital is
-        the city unless the city is a small part of it (Lisbon and Porto are the
-        cities; Quebec is the province; California, MD is not California): threshold 10% of
-        the population.
+        the city unless the city is under 10% of it (Lisbon and Porto are the
+        cities; Quebec is the province). A subdivision named like a city in
+        another subdivision wins unless the city is at least half its size;
+        between half and the same size, only the country is determined.
         """
         cities = [r for r in readings if r.place.kind == "city"]
         if not cities:
-            return None
+            return None, False
         best = max(cities, key=lambda r: r.weight)
-        countries = [r for r in readings if r.place.kind == "country"]
+        # A translation is weaker: Finnish "Brasilia" is Brazil, but the city it names is meant.
+        countries = [r for r in readings if r.place.kind == "country" and r.origin != "translation"]
         if countries and best.place.pop < 0.5 * max(c.place.pop for c in countries):
-            return None
+            return None, False
         subs = [r for r in readings if r.place.kind in ("subdivision", "area")
                 and r.origin in ("name", "translation", "alias")]
-        if subs and (best.weight < 0.1 * max(r.weight for r in subs) or best.origin == "short"):
-            return None  # "Morelos" is the state, not Ecatepec de Morelos
-        return best
+        if not subs:
+            return best, False
+        if best.origin == "short":
+            return None, False  # "Morelos" is the state, not Ecatepec de Morelos
+        same = [r.weight for r in subs if r.place.sub == best.place.sub]
+        other = [r.weight for r in subs if r.place.sub != best.place.sub]
+        if same and best.weight < 0.1 * max(same):
+            return None, False
+        if other and not same:
+            if best.weight < 0.5 * max(other):
+                return None, False
+            if best.weight < max(other):
+                return None, True
+        return best, False
 
     @staticmethod
     def _score(p: float, res: Resolution, query: Query, dists) -> float:
