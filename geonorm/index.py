@@ -121,6 +121,21 @@ def _name_variants(name: str) -> list[str]:
     return out or [name]
 
 
+_SAINTS = (("saint ", "st "), ("sainte ", "ste "), ("mount ", "mt "), ("fort ", "ft "))
+
+
+def _saint_variants(name: str) -> list[str]:
+    """The usual short and long forms of a leading Saint/Mount/Fort ("St. Petersburg")."""
+    key = fold(name) + " "
+    out = []
+    for long, short in _SAINTS:
+        if key.startswith(long):
+            out.append(short + key[len(long):])
+        elif key.startswith(short):
+            out.append(long + key[len(short):])
+    return [o.strip() for o in out]
+
+
 def _top_level(sub_code: str, parents: dict[str, str | None]) -> str:
     seen = set()
     while parents.get(sub_code) and sub_code not in seen:
@@ -440,6 +455,8 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         gid_pid[c["geonameid"]] = pid
         big = pop >= 15000
         b.add_name(c["name"], pid, "name", fuzzy=big)
+        for variant in _saint_variants(c["name"]):
+            b.add_name(variant, pid, "name")
         main_words = set(fold(c["name"]).split())
         for alt in c.get("alternatenames") or ():
             if _good_alt_name(alt):

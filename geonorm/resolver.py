@@ -20,7 +20,7 @@ from __future__ import annotations
 import math
 from collections import Counter, defaultdict
 from collections.abc import Iterable, Mapping
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 from .calibration import Calibration, load_calibration
 from .index import Place, PlaceIndex, load_index
@@ -52,6 +52,10 @@ SOVEREIGN = {
     **dict.fromkeys(["CX", "CC", "NF", "HM"], "AU"),
     **dict.fromkeys(["TK", "NU", "CK"], "NZ"),
 }
+# How far the file's country mix may lean an ambiguous name: shares are raised
+# to this power (0 = ignore the file, 1 = full Bayes with the file as prior).
+# Kept low because a file's majority says little about one person's town.
+PRIOR_EXPONENT = 0.3
 NOT_A_PLACE_REASON = {"empty": Reason.EMPTY, "placeholder": Reason.PLACEHOLDER,
                       "junk": Reason.JUNK, "fictional": Reason.FICTIONAL}
 
@@ -213,13 +217,28 @@ class Resolver:
         # whole parts whose only exact readings are small places.
         weak_parts = {m.part for m in by_span.values()} - {
             m.part for m in by_span.values()
-            if max(r.place.pop for r in m.readings) >= 15000 or any(_is_container_reading(r) for r in m.readings)}
+            if max(r.place.pop for r in m.readings) >= 15000
+            or any(_is_container_reading(r) or r.place.kind == "region" for r in m.readings)}
         for pi in weak_parts:
             covered -= {(pi, i) for i in range(len(query.parts[pi].tokens))}
         fuzzy = self.fuzzy.resolve(query, covered)
+        # A part whose words are explained only in pieces ("Ne York" → York) may be one
+        # misspelt name: a close spelling of the whole part wins over the pieces.
+        for pi, part in enumerate(query.parts):
+            words = [t.key for t in part.tokens]
+            if part.street or len(words) < 2 or pi in weak_parts:
+                continue
+            loose = [i for i, w in enumerate(words) if (pi, i) not in covered and w not in STOPWORDS]
+            if loose and len(part.key) >= FuzzyStage.min_len and part.key.isascii():
+                whole = self.fuzzy.match(part.key, pi, 0)
+                if whole is not None and max(r.weight for r in whole.readings) >= 5 * max(
+                        (r.weight for k, m in by_span.items() if k[0] == pi for r in m.readings), default=0.0):
+                    weak_parts.add(pi)
+                    fuzzy = [m for m in fuzzy if m.part != pi] + [whole]
         for fm in fuzzy:
             for key in [k for k, m in by_span.items() if k[0] == fm.part and k[0] in weak_parts]:
                 del by_span[key]
+        for fm in fuzzy:
             by_span[(fm.part, fm.start, fm.text)] = fm
         found += sorted(by_span.values(), key=lambda m: (m.part, m.start))
         return self._prune(found)
@@ -246,6 +265,13 @@ class Resolver:
                               and r.place.kind != "city"]
             if any(r.place.kind in ("region", "area") for r in m.readings):
                 m.readings = [r for r in m.readings if r.place.kind != "city" or r.place.pop >= 100_000]
+            main = max((r.place.pop for r in m.readings if r.place.kind == "city" and r.origin == "name"),
+                       default=0)
+            if main >= 100_000:
+                # A large place called exactly this outweighs places that only carry the
+                # name as a variant or former name (Islamabad, not Chittagong's old name).
+                m.readings = [replace(r, weight=r.weight * 0.2) if r.origin in ("alt", "short") and
+                              r.place.kind == "city" else r for r in m.readings]
             if any(r.origin == "alias" for r in m.readings):
                 # A curated nickname beats a code of the same letters (KL, LA, DC).
                 m.readings = [r for r in m.readings if r.origin not in ("code2", "code3", "postal", "sub_code")]
@@ -366,13 +392,14 @@ class Resolver:
         # Drop weak stray places (a word that happens to be a town's name) when
         # the rest of the text names a country or a larger place.
         if len(dists) > 1:
-            strong = [t for t in dists if max(r.place.pop for rs in t[2] for r in rs) >= 20000
-                      or any(_is_container_reading(r) for rs in t[2] for r in rs)]
+            strong = [t for t in dists if (max(r.place.pop for rs in t[2] for r in rs) >= 20000
+                      or any(_is_container_reading(r) for rs in t[2] for r in rs))
+                      and not all(m.source == "fuzzy" for m in t[0].mentions)]
             dists = strong or dists
         countries = set().union(*(d.keys() for _, d, _ in dists))
         joint = {c: math.prod(d.get(c, 0.0) for _, d, _ in dists) for c in countries}
         if prior:
-            joint = {c: v * math.sqrt(prior.get(c, 0.0) + 0.02) for c, v in joint.items()}
+            joint = {c: v * (prior.get(c, 0.0) + 0.02) ** PRIOR_EXPONENT for c, v in joint.items()}
         total = sum(joint.values())
         bests = [max(d, key=lambda c: (d[c], c)) for _, d, _ in dists]
         distinct = sorted(set(bests), key=bests.index)
@@ -553,7 +580,7 @@ class Resolver:
         if best and best.place.kind == "city" and len(dists) == 1 and len(dists[0][0].mentions) == 1:
             if best.origin == "alt" and best.place.pop < 15_000:
                 score *= 0.75
-            score *= min(1.0, 0.55 + 0.1 * math.log10(max(best.place.pop, 1)))
+            score *= min(1.0, 0.3 + 0.15 * math.log10(max(best.place.pop, 1)))
         if best and best.origin == "adjective" and all(r.origin == "adjective" for r in all_readings):
             score *= 0.6
         return max(1e-4, min(0.9999, score))

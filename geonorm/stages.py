@@ -13,7 +13,8 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass, field
 
-from rapidfuzz import fuzz, process
+from rapidfuzz import process
+from rapidfuzz.distance import OSA
 
 from .index import NameHit, Place, PlaceIndex
 from .normalize import Part, Query, fold
@@ -204,8 +205,8 @@ class FlagStage:
         out = []
         for code in query.flags:
             place = self.index.countries.get(code) if "-" not in code else self.index.subdivisions.get(code)
-            if place is None and code == "GB-ENG":
-                place = self.index.subdivisions.get(code)
+            if place is None:  # the EU and UN flags name regions, not countries
+                place = next((h.place for h in self.index.lookup(code.lower()) if h.place.kind == "region"), None)
             if place is not None:
                 out.append(Mention(code, -1, 0, [Reading(place, "flag", 1.0)], source="flag"))
         return out
@@ -324,7 +325,7 @@ class CityStage(_SpanStage):
         # two-letter alternate name is not.
         if hit.origin == "alias":
             return True
-        if len(span.key.replace(".", "")) <= 2:
+        if len(span.key.replace(".", "")) <= 2 and span.key.isascii():
             # Two capitals are a code, not the village of "As"; two-letter alternate names are noise.
             return hit.origin != "alt" and not _typed(query, span).isupper()
         return True
@@ -337,11 +338,34 @@ class FuzzyStage:
     and subdivisions, so it stays fast and never fires on short tokens.
     """
 
-    min_len = 5
-    cutoff = 84.0
+    min_len = 6
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
+
+    @staticmethod
+    def max_edits(text: str) -> int:
+        """Edits tolerated (insert, delete, substitute, swap neighbours): 1 up to 8 letters, then 2."""
+        return 1 if len(text) <= 8 else 2
+
+    def match(self, phrase: str, pi: int, start: int) -> Mention | None:
+        keys, pids = self.index.fuzzy_block(phrase[0])
+        if not keys:
+            return None
+        limit = self.max_edits(phrase)
+        matches = process.extract(phrase, keys, scorer=OSA.distance, score_cutoff=limit, limit=8)
+        matches = [m for m in matches if m[0] != phrase]
+        if not matches:
+            return None
+        best = min(m[1] for m in matches)
+        readings = []
+        for key, dist, idx in matches:
+            if dist > best:
+                continue
+            place = self.index.place(pids[idx])
+            similarity = 1.0 - dist / max(len(phrase), len(key))
+            readings.append(Reading(place, "fuzzy", place_weight(place, "name"), similarity))
+        return Mention(phrase, pi, start, readings, source="fuzzy")
 
     def resolve(self, query: Query, covered: set[tuple[int, int]]) -> list[Mention]:
         out = []
@@ -363,20 +387,9 @@ class FuzzyStage:
                 phrase = " ".join(words[i] for i in run)
                 if len(phrase.replace(" ", "")) < self.min_len or not phrase.isascii():
                     continue
-                keys, pids = self.index.fuzzy_block(phrase[0])
-                if not keys:
-                    continue
-                matches = process.extract(phrase, keys, scorer=fuzz.ratio, score_cutoff=self.cutoff, limit=8)
-                if not matches:
-                    continue
-                best = matches[0][1]
-                readings = []
-                for _key, score, idx in matches:
-                    if score < best - 0.01:
-                        continue
-                    place = self.index.place(pids[idx])
-                    readings.append(Reading(place, "fuzzy", place_weight(place, "name"), score / 100.0))
-                out.append(Mention(phrase, pi, run[0], readings, source="fuzzy"))
+                m = self.match(phrase, pi, run[0])
+                if m is not None:
+                    out.append(m)
         return out
 
 
