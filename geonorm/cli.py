@@ -14,6 +14,7 @@ from rich.console import Console
 from rich.table import Table
 
 from .errors import GeonormError
+from .resolver import DEFAULT_ACCEPT
 
 app = typer.Typer(help="Resolve free-text location fields to ISO 3166 places, offline.",
                   no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False)
@@ -57,7 +58,7 @@ def handle_errors(fn):
 def lookup(
     text: Annotated[list[str], typer.Argument(help="One or more location strings.")],
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON instead of a table.")] = False,
-    accept: AcceptOpt = 0.8,
+    accept: AcceptOpt = DEFAULT_ACCEPT,
     quiet: QuietOpt = False,
 ) -> None:
     """Resolve location strings given on the command line."""
@@ -87,7 +88,7 @@ def clean(
     column: Annotated[str, typer.Option("--column", "-c", help="Name of the location column.")],
     output: Annotated[str, typer.Option("--out", "-o", help="Where to write the cleaned CSV ('-' for stdout).")],
     cache: CacheOpt = None,
-    accept: AcceptOpt = 0.8,
+    accept: AcceptOpt = DEFAULT_ACCEPT,
     prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the added columns.")] = "geo_",
     encoding: Annotated[str, typer.Option("--encoding", help="Text encoding of the input.")] = "utf-8-sig",
     quiet: QuietOpt = False,

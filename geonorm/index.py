@@ -283,7 +283,7 @@ class _Builder:
         self.progress = progress
         self.places: list[tuple] = []
         self.names: set[tuple[str, int, int]] = set()
-        self.fuzzy: set[tuple[str, int]] = set()
+        self.fuzzy: set[tuple[str, int, int]] = set()
 
     def add_place(self, kind: str, cc: str, sub: str, name: str, lat: float | None,
                   lon: float | None, pop: int, gid: int | None) -> int:
@@ -297,7 +297,7 @@ class _Builder:
             return
         self.names.add((key, pid, ORIGIN_ID[origin]))
         if fuzzy and len(key) >= 5 and key.isascii():
-            self.fuzzy.add((key, pid))
+            self.fuzzy.add((key, pid, ORIGIN_ID[origin]))
 
 
 def build_index(path: Path | None = None, progress: Progress | None = None) -> Path:
@@ -535,7 +535,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         CREATE TABLE place(id INTEGER PRIMARY KEY, kind TEXT, cc TEXT, sub TEXT, name TEXT,
                            lat REAL, lon REAL, pop INTEGER, gid INTEGER);
         CREATE TABLE name(key TEXT, place INTEGER, origin INTEGER);
-        CREATE TABLE fuzzy(block TEXT, key TEXT, place INTEGER);
+        CREATE TABLE fuzzy(block TEXT, key TEXT, place INTEGER, origin INTEGER);
         CREATE TABLE nonplace(key TEXT PRIMARY KEY, kind TEXT);
         CREATE TABLE noise(phrase TEXT, position TEXT);
         CREATE TABLE postcode(prefix TEXT PRIMARY KEY, place INTEGER);
@@ -544,7 +544,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
     )
     db.executemany("INSERT INTO place VALUES (?,?,?,?,?,?,?,?,?)", b.places)
     db.executemany("INSERT INTO name VALUES (?,?,?)", sorted(b.names))
-    db.executemany("INSERT INTO fuzzy VALUES (?,?,?)", ((k[0], k, p) for k, p in sorted(b.fuzzy)))
+    db.executemany("INSERT INTO fuzzy VALUES (?,?,?,?)", ((k[0], k, p, o) for k, p, o in sorted(b.fuzzy)))
     db.executemany("INSERT OR IGNORE INTO nonplace VALUES (?,?)", nonplace_rows)
     db.executemany("INSERT INTO noise VALUES (?,?)", noise_rows)
     db.executemany("INSERT OR IGNORE INTO postcode VALUES (?,?)", postcode_resolved)
@@ -599,7 +599,7 @@ class PlaceIndex:
             if p.kind == "country":
                 self.countries[p.cc] = p
         self.subdivisions = {p.sub: p for p in self._places.values() if p.kind == "subdivision"}
-        self._fuzzy_blocks: dict[str, tuple[list[str], list[int]]] = {}
+        self._fuzzy_blocks: dict[str, tuple[list[str], list[tuple[int, str]]]] = {}
         self._lock = threading.Lock()
 
     def _db(self) -> sqlite3.Connection:
@@ -636,12 +636,14 @@ class PlaceIndex:
         ).fetchone()
         return row is not None
 
-    def fuzzy_block(self, first: str) -> tuple[list[str], list[int]]:
+    def fuzzy_block(self, first: str) -> tuple[list[str], list[tuple[int, str]]]:
+        """Names starting with ``first`` that typo matching may reach, with (place, origin)."""
         with self._lock:
             block = self._fuzzy_blocks.get(first)
             if block is None:
-                rows = self._db().execute("SELECT key, place FROM fuzzy WHERE block = ?", (first,)).fetchall()
-                block = ([r[0] for r in rows], [r[1] for r in rows])
+                rows = self._db().execute("SELECT key, place, origin FROM fuzzy WHERE block = ?",
+                                          (first,)).fetchall()
+                block = ([r[0] for r in rows], [(r[1], ORIGINS[r[2]]) for r in rows])
                 self._fuzzy_blocks[first] = block
             return block
 

@@ -47,9 +47,9 @@ _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
 @dataclass(frozen=True)
 class Reading:
     place: Place
-    origin: str       # name origin (name, alias, code2, postal, alt …) or flag / postcode / fuzzy
+    origin: str       # name origin (name, alias, code2, postal, alt …) or flag / postcode
     weight: float
-    similarity: float = 1.0  # 1.0 exact; fuzzy matches carry their ratio
+    similarity: float = 1.0  # 1.0 exact; typo matches carry 1 − edits / length
 
 
 @dataclass
@@ -349,7 +349,7 @@ class FuzzyStage:
         return 1 if len(text) <= 8 else 2
 
     def match(self, phrase: str, pi: int, start: int) -> Mention | None:
-        keys, pids = self.index.fuzzy_block(phrase[0])
+        keys, targets = self.index.fuzzy_block(phrase[0])
         if not keys:
             return None
         limit = self.max_edits(phrase)
@@ -362,9 +362,10 @@ class FuzzyStage:
         for key, dist, idx in matches:
             if dist > best:
                 continue
-            place = self.index.place(pids[idx])
+            pid, origin = targets[idx]
+            place = self.index.place(pid)
             similarity = 1.0 - dist / max(len(phrase), len(key))
-            readings.append(Reading(place, "fuzzy", place_weight(place, "name"), similarity))
+            readings.append(Reading(place, origin, place_weight(place, origin), similarity))
         return Mention(phrase, pi, start, readings, source="fuzzy")
 
     def resolve(self, query: Query, covered: set[tuple[int, int]]) -> list[Mention]:
