@@ -186,10 +186,10 @@ class Resolver:
 
     @staticmethod
     def file_prior(results: Mapping[str, tuple[Resolution, int]], min_rows: int = 50) -> dict[str, float]:
-        """Country shares among confident single-reading rows (Laplace-smoothed)."""
+        """Country shares among confidently matched rows, by row count (Laplace-smoothed)."""
         tally: Counter[str] = Counter()
         for res, n in results.values():
-            if res.status == Status.MATCHED and res.confidence >= 0.9 and len(res.evidence) <= 1:
+            if res.status == Status.MATCHED and res.confidence >= 0.9 and res.reason != Reason.FILE_PRIOR:
                 tally[res.country] += n
         total = sum(tally.values())
         if total < min_rows:

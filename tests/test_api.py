@@ -1,0 +1,37 @@
+"""The public API and the end-to-end demo."""
+
+from __future__ import annotations
+
+import csv
+
+import geonorm
+from geonorm.demo import run_demo
+
+
+def test_public_api_is_explicit():
+    assert sorted(geonorm.__all__) == sorted(
+        ["Cache", "CacheError", "Candidate", "CleanSummary", "DEFAULT_ACCEPT", "GeonormError", "IndexError_",
+         "InputError", "PlaceIndex", "Query", "Reason", "Resolution", "Resolver", "Status", "__version__",
+         "build_index", "clean_file", "load_index", "normalize", "resolve_series"])
+    for name in geonorm.__all__:
+        assert hasattr(geonorm, name)
+
+
+def test_resolve_series_returns_geo_columns():
+    cols = geonorm.resolve_series(["Oslo", "", "Oslo", "Lisbon / Berlin"])
+    assert cols["country"] == ["NO", "", "NO", ""]
+    assert cols["status"] == ["matched", "not_a_place", "matched", "review"]
+
+
+def test_demo_end_to_end(tmp_path):
+    result = run_demo(tmp_path)
+    summary = result["summary"]
+    assert summary.rows == 20_000
+    cleaned = list(csv.DictReader(open(tmp_path / "members_clean.csv", encoding="utf-8", newline="")))
+    source = list(csv.DictReader(open(geonorm.demo.demo_file(), encoding="utf-8", newline="")))
+    assert [r["member_id"] for r in cleaned] == [r["member_id"] for r in source]
+    assert all(r["location"] == s["location"] for r, s in zip(cleaned, source))
+    assert summary.status["matched"] / summary.rows > 0.7
+    assert dict(result["top_countries"])["US"] > dict(result["top_countries"]).get("GB", 0)
+    again = run_demo(tmp_path)["summary"]
+    assert again.cache_hits == again.distinct
