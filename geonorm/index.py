@@ -439,7 +439,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
             tr = gettext.translation("iso3166-2", locales_dir, languages=[lang])
         except OSError:
             continue
-        for cc, subs in top_subs.items():
+        for subs in top_subs.values():
             for code, s in subs.items():
                 translated = tr.gettext(s["name"])
                 if translated != s["name"]:

@@ -18,7 +18,7 @@ import unicodedata
 from dataclasses import dataclass, field
 from functools import lru_cache
 
-__all__ = ["Token", "Part", "Query", "normalize", "fold", "NoisePhrases"]
+__all__ = ["Token", "Part", "Query", "normalize", "normalize_key", "fold", "NoisePhrases"]
 
 # Regional indicator symbols U+1F1E6..U+1F1FF map to A..Z (Unicode TR51, flags).
 _RI_BASE = 0x1F1E6
@@ -192,18 +192,35 @@ class NoisePhrases:
 _EMPTY_NOISE = NoisePhrases([], [], [])
 
 
+def _clean_text(raw: str) -> tuple[str, list[str]]:
+    """NFKC, flags out (returned as ISO codes), emoji and stray symbols to spaces."""
+    text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
+    text, flags = extract_flags(text)
+    text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
+    for ch in "#@\"!?*~":
+        text = text.replace(ch, " ")
+    return text, flags
+
+
+def _key(text: str, flags: list[str]) -> str:
+    key = fold(text)
+    if flags:
+        key = (key + " " + " ".join(f"[{c.lower()}]" for c in flags)).strip()
+    return key
+
+
+@lru_cache(maxsize=500_000)
+def normalize_key(raw: str) -> str:
+    """The cache key of a raw value (the ``key`` of ``normalize``), computed alone."""
+    return _key(*_clean_text(raw))
+
+
 def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     """Normalise one raw value. Never raises; non-strings become empty queries."""
     if not isinstance(raw, str):
         raw = "" if raw is None else str(raw)
-    text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
-    text, flags = extract_flags(text)
-    text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
-    text = text.replace("#", " ").replace("@", " ").replace("\"", " ").replace("!", " ")
-    text = text.replace("?", " ").replace("*", " ").replace("~", " ")
-    key = fold(text)
-    if flags:
-        key = (key + " " + " ".join(f"[{c.lower()}]" for c in flags)).strip()
+    text, flags = _clean_text(raw)
+    key = _key(text, flags)
     noise = noise or _EMPTY_NOISE
     parts: list[Part] = []
     postcodes: list[str] = []

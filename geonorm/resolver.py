@@ -23,12 +23,21 @@ from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field, replace
 
 from .calibration import Calibration, load_calibration
-from .index import Place, PlaceIndex, load_index
-from .normalize import NoisePhrases, Query, normalize
+from .index import PlaceIndex, load_index
+from .normalize import NoisePhrases, Query, normalize, normalize_key
 from .resolution import Candidate, Reason, Resolution, Status
 from .stages import (
-    STOPWORDS, CityStage, CountryStage, FlagStage, FuzzyStage, Mention, NotAPlaceStage,
-    PostcodeStage, Reading, Segmenter, SubdivisionStage,
+    STOPWORDS,
+    CityStage,
+    CountryStage,
+    FlagStage,
+    FuzzyStage,
+    Mention,
+    NotAPlaceStage,
+    PostcodeStage,
+    Reading,
+    Segmenter,
+    SubdivisionStage,
 )
 
 __all__ = ["Resolver", "RESOLVER_VERSION", "DEFAULT_ACCEPT", "apply_accept"]
@@ -141,7 +150,9 @@ class Resolver:
 
     def key(self, raw: object) -> str:
         """The cache key of a raw value: its folded, whitespace-collapsed form."""
-        return normalize(raw).key
+        if not isinstance(raw, str):
+            raw = "" if raw is None else str(raw)
+        return normalize_key(raw)
 
     def resolve(self, raw: object, prior: Mapping[str, float] | None = None) -> Resolution:
         """Resolve one string. Never raises on any text."""
@@ -288,15 +299,12 @@ class Resolver:
         """Split mentions into places; return the groups and the global qualifiers."""
         flags = [m for m in mentions if m.source in ("flag", "postcode")]
         rest = [m for m in mentions if m.source not in ("flag", "postcode")]
-        global_ = []
         groups: list[_Group] = []
-        flag_countries = {r.place.cc for m in flags for r in m.readings}
-        if len(flag_countries) <= 1 or rest:
-            global_ = flags if len(flag_countries) <= 1 else []
-            if len(flag_countries) > 1:
-                rest = flags + rest
+        qualifiers: list[Mention] = []
+        if len({r.place.cc for m in flags for r in m.readings}) <= 1:
+            qualifiers = flags  # one flag or postcode qualifies the whole text
         else:
-            rest = flags
+            rest = flags + rest  # several flags are several places
         for m in rest:
             if not groups:
                 groups.append(_Group([m]))
@@ -319,7 +327,7 @@ class Resolver:
             if all(r.origin in ("postal", "sub_code") for r in m.readings):
                 continue  # an abbreviation qualifies what precedes it; one that fits nothing is noise
             groups.append(_Group([m]))
-        return groups, global_
+        return groups, qualifiers
 
     def _group_dist(self, g: _Group, qualifiers: list[Mention]) -> tuple[dict[str, float], list[list[Reading]]]:
         """Country distribution of one place, and each mention's consistent readings."""
@@ -346,13 +354,13 @@ class Resolver:
                 rs = in_sub or rs
             kept.append(rs)
         dist: dict[str, float] = {}
-        for rs, m in zip(kept, mentions):
+        for rs in kept:
             d = _dist(rs)
             if not d:
                 continue
             # Territories inherit their sovereign's qualifier: "Hong Kong, China".
             for terr, sov in SOVEREIGN.items():
-                if sov in d and any(terr in dist for _ in [0]) and terr not in d:
+                if sov in d and terr in dist and terr not in d:
                     d[terr] = d[sov]
             if not dist:
                 dist = d
@@ -408,9 +416,7 @@ class Resolver:
         multi_score = math.prod(max(d.values()) for _, d, _ in dists) * MULTI_PENALTY ** (len(distinct) - 1)
         top = max(joint, key=lambda c: (joint[c], c)) if total > 0 else ""
         if len(distinct) > 1 and (total <= 0 or multi_score > joint[top]):
-            cands = []
-            for (g, d, kept), c in zip(dists, bests):
-                cands.append(self._candidate(c, kept, d[c]))
+            cands = [self._candidate(c, kept, d[c]) for (_, d, kept), c in zip(dists, bests)]
             return Resolution(Status.REVIEW, Reason.SEVERAL_COUNTRIES, candidates=cands[:5],
                               evidence={c: round(v, 4) for c, v in sorted(joint.items())} if total else {})
         p = joint[top] / total
@@ -437,19 +443,14 @@ class Resolver:
         """Subdivision, city and reason for a single-country answer."""
         subs_named: set[str] = set()
         points: list[Reading] = []
-        origins: set[str] = set()
         sources: set[str] = set()
-        kinds: set[str] = set()
         ambiguous_points = False
         undetermined = False
-        for g, d, kept in dists:
+        for g, _, kept in dists:
             group_points = []
             for m, rs in zip(g.mentions + qualifiers, kept):
                 rs_c = [r for r in rs if r.place.cc == top or SOVEREIGN.get(r.place.cc) == top]
                 sources.add(m.source)
-                for r in rs_c:
-                    origins.add(r.origin)
-                    kinds.add(r.place.kind)
                 cont = [r for r in rs_c if r.place.kind in ("subdivision", "area") and r.place.sub]
                 heaviest_here = max(rs_c, key=lambda r: r.weight, default=None)
                 if cont and all(_is_container_reading(r) for r in rs) and heaviest_here is not None \
