@@ -38,7 +38,10 @@ UNSAFE_ALPHA3 = frozenset(
 # Two-letter codes that are everyday words when typed in lower case.
 LOWER_WORD_CODES = frozenset("in at to be is it me my no so us am an as by do go he hi id if la lo ma "
                              "mo ne of oh ok on or pa sa al co de".split())
-_CJK = re.compile(r"[\u3040-\u30ff\u3400-\u4dbf\u4e00-\u9fff\uac00-\ud7af]")
+# Scripts written without spaces between words: Han, Kana, Hangul runs, Thai,
+# Lao, Khmer, Myanmar. Names inside them are found by longest substring match.
+_CJK = re.compile(r"[\u0e00-\u0eff\u1000-\u109f\u1780-\u17ff\u3040-\u30ff\u3400-\u4dbf\u4e00-\u9fff"
+                  r"\uac00-\ud7af]")
 _IPV4 = re.compile(r"^\d{1,3}(?:[ .]\d{1,3}){3}$")
 _URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|@")
 _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
