@@ -1,31 +1,35 @@
-"""Clean a whole file: distinct strings first, cache, resolve misses, join back.
+"""Clean a whole file: distinct strings first, cache, resolve misses in parallel, join back.
 
-Every input row comes back in input order with all its columns untouched,
-followed by the geo columns. Output goes to a temporary file renamed at the
-end, so a failed run never leaves half a file behind.
+Pass 1 streams the location column and counts its distinct values. Their keys
+are looked up in the cache in bulk; the misses are resolved in a process pool
+in chunks, and each chunk is committed to the cache, so a killed run resumes
+where it stopped. The file prior and the accept threshold are applied to the
+complete set of answers, then pass 2 streams the file again, appends the geo
+columns and writes a temporary file that is renamed at the end. The output of
+an interrupted-and-resumed run is byte-identical to an uninterrupted one.
 """
 
 from __future__ import annotations
 
-import csv
-import io
+import json
+import multiprocessing as mp
 import os
-import sys
 import time
 from collections import Counter
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from .cache import Cache
 from .errors import InputError
+from .formats import count_values, find_ragged, open_source, output_format, read_header, set_aside, write_output
 from .resolution import Resolution, Status
-from .resolver import DEFAULT_ACCEPT, Resolver, apply_accept
+from .resolver import DEFAULT_ACCEPT, Resolver
 
-__all__ = ["GEO_FIELDS", "CleanSummary", "clean_file", "resolve_values", "geo_row"]
+__all__ = ["GEO_FIELDS", "CleanSummary", "clean_file", "resolve_values", "resolve_series", "geo_values"]
 
 GEO_FIELDS = ("country", "subdivision", "city", "lat", "lon", "confidence", "reason", "status")
-csv.field_size_limit(min(sys.maxsize, 2**31 - 1))
+CHUNK = 2000  # distinct strings per task and per cache commit
 
 
 @dataclass
@@ -34,9 +38,11 @@ class CleanSummary:
     distinct: int = 0
     cache_hits: int = 0
     resolved: int = 0
+    bad_lines: int = 0
     seconds: float = 0.0
     status: dict[str, int] = field(default_factory=dict)
     output: str = ""
+    versions: dict[str, str] = field(default_factory=dict)
 
     def to_dict(self) -> dict:
         d = asdict(self)
@@ -44,40 +50,84 @@ class CleanSummary:
         return d
 
 
-def geo_row(res: Resolution) -> list[str]:
-    """The geo column values of one resolution, as text."""
-    return [
-        res.country, res.subdivision, res.city,
-        "" if res.lat is None else f"{res.lat:.5f}",
-        "" if res.lon is None else f"{res.lon:.5f}",
-        f"{res.confidence:.3f}", res.reason.value, res.status.value,
-    ]
+def geo_values(res: Resolution) -> list:
+    """The geo column values of one resolution (numbers as numbers, missing as None)."""
+    return [res.country, res.subdivision, res.city, res.lat, res.lon, round(res.confidence, 3),
+            res.reason.value, res.status.value]
 
 
-def resolve_values(values: Iterable[object], *, resolver: Resolver | None = None, cache: Cache | None = None,
-                   accept: float | None = None, progress: Callable[[str], None] | None = None,
-                   summary: CleanSummary | None = None) -> dict[str, Resolution]:
-    """Resolve the distinct keys of ``values``; returns key → Resolution (file prior applied)."""
+# -- the process pool ------------------------------------------------------
+_WORKER: Resolver | None = None
+
+
+def _worker_init(resolver: Resolver | None, index_path: str, accept: float) -> None:
+    global _WORKER
+    if resolver is None:  # spawn start method: open the index file again (no rebuild)
+        from .index import PlaceIndex
+
+        resolver = Resolver(PlaceIndex(Path(index_path)), accept=accept)
+    resolver.index.reopen()
+    _WORKER = resolver
+
+
+def _worker_resolve(keys: Sequence[str]) -> list[tuple[str, Resolution]]:
+    assert _WORKER is not None
+    return [(k, _WORKER.resolve(k)) for k in keys]
+
+
+def _resolve_misses(resolver: Resolver, misses: list[str], workers: int, cache: Cache | None, version: str,
+                    advance: Callable[[int], None]) -> dict[str, Resolution]:
+    chunks = [misses[i:i + CHUNK] for i in range(0, len(misses), CHUNK)]
+    fresh: dict[str, Resolution] = {}
+
+    def take(pairs: list[tuple[str, Resolution]]) -> None:
+        got = dict(pairs)
+        if cache is not None:
+            cache.put_many(got, version)  # one transaction per chunk: a killed run keeps it
+        fresh.update(got)
+        advance(len(got))
+
+    if workers <= 1 or len(chunks) <= 1:
+        for chunk in chunks:
+            take([(k, resolver.resolve(k)) for k in chunk])
+        return fresh
+    if "fork" in mp.get_all_start_methods():
+        # Forked workers share the loaded index (read-only memory and the OS page cache).
+        ctx, shared = mp.get_context("fork"), resolver
+    else:  # pragma: no cover - platforms without fork
+        ctx, shared = mp.get_context("spawn"), None
+    with ctx.Pool(workers, initializer=_worker_init,
+                  initargs=(shared, str(resolver.index.path), resolver.accept)) as pool:
+        for pairs in pool.imap(_worker_resolve, chunks):
+            take(pairs)
+    return fresh
+
+
+def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None = None,
+                   cache: Cache | None = None, accept: float | None = None, workers: int = 1,
+                   summary: CleanSummary | None = None,
+                   on_misses: Callable[[int], Callable[[int], None]] | None = None) -> dict[str, Resolution]:
+    """Resolve the distinct keys of ``values`` (or of a value → row-count dict).
+
+    Returns key → Resolution with the accept threshold and the file prior applied.
+    ``on_misses(n)`` is told how many strings need resolving and returns a
+    function called with each chunk's size (for a progress bar).
+    """
     resolver = resolver or Resolver(accept=DEFAULT_ACCEPT if accept is None else accept)
     accept = resolver.accept if accept is None else accept
     counts: Counter[str] = Counter()
-    first_raw: dict[str, object] = {}
-    for v in values:
-        k = resolver.key(v)
-        counts[k] += 1
-        first_raw.setdefault(k, v)
+    pairs = values.items() if isinstance(values, dict) else ((v, 1) for v in values)
+    for v, n in pairs:
+        counts[resolver.key(v)] += n
     version = resolver.version
     found = cache.get_many(counts, version) if cache else {}
-    misses = [k for k in counts if k not in found]
-    if progress and misses:
-        progress(f"resolving {len(misses):,} new distinct strings ({len(found):,} from the cache)")
-    fresh = {k: resolver.resolve(first_raw[k]) for k in misses}
-    if cache and fresh:
-        cache.put_many(fresh, version)
+    misses = sorted(k for k in counts if k not in found)
+    advance = on_misses(len(misses)) if on_misses else (lambda n: None)
+    fresh = _resolve_misses(resolver, misses, workers, cache, version, advance)
     results = {**found, **fresh}
     for r in results.values():
-        apply_accept(r, accept)
-    resolver.apply_file_prior(results, counts, first_raw)
+        _accept(r, accept)
+    resolver.apply_file_prior(results, counts, {k: k for k in counts})
     if summary is not None:
         summary.distinct = len(counts)
         summary.cache_hits = len(found)
@@ -85,112 +135,162 @@ def resolve_values(values: Iterable[object], *, resolver: Resolver | None = None
     return results
 
 
-def _open_text(path: str | Path, encoding: str) -> io.TextIOBase:
-    if str(path) == "-":
-        return io.TextIOWrapper(sys.stdin.buffer, encoding=encoding, newline="")
-    p = Path(path)
-    if not p.exists():
-        raise InputError(f"input file {p} does not exist", hint="check the path and try again")
-    if p.is_dir():
-        raise InputError(f"{p} is a folder, not a file", hint="pass the CSV file inside it")
-    return open(p, encoding=encoding, newline="")
+def _accept(res: Resolution, accept: float) -> None:
+    from .resolver import apply_accept
+
+    apply_accept(res, accept)
 
 
-def _closest(name: str, options: list[str]) -> str:
-    from rapidfuzz import process
+class _Progress:
+    """A rich progress bar on stderr, or nothing (quiet, or stderr not a terminal)."""
 
-    hit = process.extractOne(name, options)
-    return hit[0] if hit and hit[1] >= 50 else ""
+    def __init__(self, enabled: bool) -> None:
+        self.bar = None
+        if enabled:
+            from rich.console import Console
+            from rich.progress import (
+                BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn,
+            )
+
+            self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                                TextColumn("{task.fields[rate]}"), TimeElapsedColumn(), TimeRemainingColumn(),
+                                console=Console(stderr=True), transient=True)
+
+    def __enter__(self) -> _Progress:
+        if self.bar:
+            self.bar.__enter__()
+        return self
+
+    def __exit__(self, *exc) -> None:
+        if self.bar:
+            self.bar.__exit__(*exc)
+
+    def task(self, description: str, total: int) -> Callable[[int], None]:
+        if not self.bar:
+            return lambda n: None
+        bar = self.bar
+        tid = bar.add_task(description, total=total, rate="")
+        started = time.perf_counter()
+
+        def advance(n: int) -> None:
+            bar.advance(tid, n)
+            done = bar.tasks[tid].completed
+            bar.update(tid, rate=f"{done / max(time.perf_counter() - started, 1e-6):,.0f}/s")
+
+        return advance
 
 
 def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cache | str | Path | None = None,
                accept: float = DEFAULT_ACCEPT, prefix: str = "geo_", resolver: Resolver | None = None,
-               encoding: str = "utf-8-sig", progress: Callable[[str], None] | None = None) -> CleanSummary:
-    """Clean ``column`` of the CSV ``input`` into ``output`` (CSV). Returns the summary."""
+               encoding: str = "utf-8", separator: str | None = None, format: str | None = None,
+               input_format: str | None = None, workers: int | None = None, bad_lines: str | Path | None = None,
+               report: str | Path | None = None, show_progress: bool = False,
+               progress: Callable[[str], None] | None = None) -> CleanSummary:
+    """Clean ``column`` of ``input`` into ``output``; returns the summary.
+
+    Formats: CSV, TSV, Parquet, JSON Lines (from the extension, or ``format``);
+    ``"-"`` reads stdin or writes stdout. ``workers`` processes resolve new
+    strings (default: the number of cores).
+    """
     started = time.perf_counter()
     summary = CleanSummary()
+    say = progress or (lambda msg: None)
+    source = open_source(input, encoding=encoding, separator=separator, input_format=input_format)
     try:
-        with _open_text(input, encoding) as fh:
-            reader = csv.reader(fh)
-            header = next(reader, None)
-            if header is None:
-                raise InputError(f"{input} is empty", hint="pass a CSV file with a header line")
-            rows = list(reader)
-    except UnicodeDecodeError as exc:
-        raise InputError(f"{input} is not valid {encoding} text ({exc.reason} at byte {exc.start})",
-                         hint="pass the file's encoding with --encoding (for example latin-1)") from exc
-    except csv.Error as exc:
-        raise InputError(f"{input} is not a readable CSV file ({exc})",
-                         hint="check the file is CSV with a header line") from exc
-    if column not in header:
-        near = _closest(column, header)
-        hint = f"did you mean --column {near!r}? " if near else ""
-        raise InputError(f"column {column!r} is not in {input}; its columns are: {', '.join(header)}",
-                         hint=hint + "pass the name of the location column with --column")
-    out_names = [prefix + f for f in GEO_FIELDS]
-    clash = [n for n in out_names if n in header]
-    if clash:
-        raise InputError(f"{input} already has the columns {', '.join(clash)}",
-                         hint="clean the original file, or choose another prefix with --prefix")
-    ci = header.index(column)
-    values = [r[ci] if ci < len(r) else "" for r in rows]
-    if isinstance(cache, (str, Path)):
-        cache = Cache(cache)
-    resolver = resolver or Resolver(accept=accept, progress=progress)
-    results = resolve_values(values, resolver=resolver, cache=cache, accept=accept, progress=progress,
-                             summary=summary)
-    status: Counter[str] = Counter()
-    out_path = Path(output)
-    tmp = out_path.with_name(f".{out_path.name}.part") if str(output) != "-" else None
-    try:
-        fh = sys.stdout if tmp is None else open(tmp, "w", encoding="utf-8", newline="")
-        try:
-            writer = csv.writer(fh, lineterminator="\n")
-            writer.writerow(header + out_names)
-            cached_rows: dict[str, list[str]] = {}
-            for r, v in zip(rows, values):
-                k = resolver.key(v)
-                geo = cached_rows.get(k)
-                if geo is None:
-                    geo = cached_rows[k] = geo_row(results[k])
-                status[geo[-1]] += 1
-                writer.writerow(r + geo)
-        finally:
-            if tmp is not None:
-                fh.close()
-        if tmp is not None:
-            os.replace(tmp, out_path)
-    except OSError as exc:
-        if tmp is not None and tmp.exists():
-            tmp.unlink()
-        raise InputError(f"cannot write {output} ({exc.strerror})",
-                         hint="check the folder exists and is writable") from exc
-    summary.rows = len(rows)
+        out_fmt = output_format(str(output), format, source)
+        header = read_header(source)
+        if column not in header:
+            raise InputError(f"column {column!r} is not in {source.name}; its columns are: {', '.join(header)}",
+                             hint=_column_hint(column, header))
+        geo_names = [prefix + f for f in GEO_FIELDS]
+        clash = [n for n in geo_names if n in header]
+        if clash:
+            raise InputError(f"{source.name} already has the columns {', '.join(clash)}",
+                             hint="clean the original file, or choose another prefix with --prefix")
+        ragged = find_ragged(source, len(header))
+        if ragged and bad_lines is None:
+            shown = ", ".join(str(n) for n in ragged[:10]) + (" …" if len(ragged) > 10 else "")
+            raise InputError(f"{source.name} has {len(ragged)} row(s) whose number of fields differs from the "
+                             f"header's {len(header)}, at line(s) {shown}",
+                             hint="fix those rows, or pass --bad-lines FILE to write them aside and go on")
+        if ragged:
+            source, summary.bad_lines = set_aside(source, len(header), Path(bad_lines))  # type: ignore[arg-type]
+            say(f"set {summary.bad_lines} ragged row(s) aside in {bad_lines}")
+        counts, summary.rows = count_values(source, column)
+        if isinstance(cache, (str, Path)):
+            cache = Cache(cache)
+        resolver = resolver or Resolver(accept=accept, progress=say)
+        workers = workers if workers is not None else (os.cpu_count() or 1)
+        if workers < 1:
+            raise InputError(f"--workers must be at least 1, got {workers}", hint="use --workers 1 or more")
+        keys = {v: resolver.key(v) for v in counts}
+        key_counts: Counter[str] = Counter()
+        for v, n in counts.items():
+            key_counts[keys[v]] += n
+        with _Progress(show_progress) as bar:
+            def on_misses(n: int) -> Callable[[int], None]:
+                say(f"{summary.rows:,} rows, {len(key_counts):,} distinct strings, {n:,} not in the cache")
+                return bar.task(f"resolving ({summary.rows:,} rows)", n)
+
+            results = resolve_values(dict(key_counts), resolver=resolver, cache=cache, accept=accept,
+                                     workers=workers, summary=summary, on_misses=on_misses)
+            mapping = {v: geo_values(results[keys[v]]) for v in counts}
+            status: Counter[str] = Counter()
+            for v, n in counts.items():
+                status[mapping[v][-1]] += n
+            write_output(source, column, mapping, geo_names, out_fmt, str(output))
+    finally:
+        source.cleanup()
     summary.status = {s.value: status.get(s.value, 0) for s in Status}
     summary.seconds = round(time.perf_counter() - started, 3)
     summary.output = str(output)
+    summary.versions = {"geonorm": _version(), "resolver": resolver.version,
+                        **{k: v for k, v in resolver.index.meta.items() if k.startswith(("source_", "index_"))},
+                        "index_built_at": resolver.index.meta.get("built_at", "")}
+    if report:
+        try:
+            Path(report).write_text(json.dumps(summary.to_dict(), indent=2, ensure_ascii=False) + "\n",
+                                    encoding="utf-8")
+        except OSError as exc:
+            raise InputError(f"cannot write the report {report} ({exc.strerror})",
+                             hint="check the folder exists and is writable") from exc
     return summary
 
 
-def resolve_series(values: Iterable[object], *, accept: float = DEFAULT_ACCEPT, cache: Cache | None = None,
-                   resolver: Resolver | None = None) -> dict[str, list]:
-    """Geo columns for a column of values (a list, pandas Series or polars Series)."""
-    values = list(values)
+def _version() -> str:
+    from . import __version__
+
+    return __version__
+
+
+def _column_hint(column: str, header: list[str]) -> str:
+    from rapidfuzz import process
+
+    hit = process.extractOne(column, header)
+    near = f"did you mean --column {hit[0]!r}? " if hit and hit[1] >= 50 else ""
+    return near + "pass the name of the location column with --column"
+
+
+def resolve_series(values, *, accept: float = DEFAULT_ACCEPT, cache: Cache | None = None,
+                   resolver: Resolver | None = None, prefix: str = "geo_", workers: int = 1):
+    """Geo columns for a column of values.
+
+    A polars Series gives a polars DataFrame, a pandas Series a pandas
+    DataFrame (same index), anything else a dict of lists. Rows keep their order.
+    """
+    data = list(values)
     resolver = resolver or Resolver(accept=accept)
-    results = resolve_values(values, resolver=resolver, cache=cache, accept=accept)
-    cols: dict[str, list] = {f: [] for f in GEO_FIELDS}
-    for v in values:
-        res = results[resolver.key(v)]
-        cols["country"].append(res.country)
-        cols["subdivision"].append(res.subdivision)
-        cols["city"].append(res.city)
-        cols["lat"].append(res.lat)
-        cols["lon"].append(res.lon)
-        cols["confidence"].append(res.confidence)
-        cols["reason"].append(res.reason.value)
-        cols["status"].append(res.status.value)
+    results = resolve_values(data, resolver=resolver, cache=cache, accept=accept, workers=workers)
+    rows = [geo_values(results[resolver.key(v)]) for v in data]
+    cols = {prefix + f: [r[i] for r in rows] for i, f in enumerate(GEO_FIELDS)}
+    module = type(values).__module__.split(".")[0]
+    if module == "polars":
+        import polars as pl
+
+        return pl.DataFrame(cols)
+    if module == "pandas":
+        import pandas as pd
+
+        return pd.DataFrame(cols, index=values.index)
     return cols
 
-
-def status_counts(results: Mapping[str, Resolution]) -> Counter[str]:
-    return Counter(r.status.value for r in results.values())

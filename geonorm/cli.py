@@ -84,21 +84,32 @@ def lookup(
 @app.command()
 @handle_errors
 def clean(
-    input: Annotated[str, typer.Argument(help="CSV file to clean ('-' for stdin).")],
+    input: Annotated[str, typer.Argument(help="File to clean: CSV, TSV, Parquet or JSON Lines ('-' for stdin).")],
     column: Annotated[str, typer.Option("--column", "-c", help="Name of the location column.")],
-    output: Annotated[str, typer.Option("--out", "-o", help="Where to write the cleaned CSV ('-' for stdout).")],
+    output: Annotated[str, typer.Option("--out", "-o", help="Where to write the result ('-' for stdout).")],
     cache: CacheOpt = None,
     accept: AcceptOpt = DEFAULT_ACCEPT,
     prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the added columns.")] = "geo_",
-    encoding: Annotated[str, typer.Option("--encoding", help="Text encoding of the input.")] = "utf-8-sig",
+    format: Annotated[Optional[str], typer.Option(
+        "--format", help="Output format: csv, tsv, parquet or jsonl (default: from --out's extension).")] = None,
+    separator: Annotated[Optional[str], typer.Option(
+        "--separator", help="Field separator of a CSV input (default: sniffed from the header).")] = None,
+    encoding: Annotated[str, typer.Option("--encoding", help="Text encoding of the input.")] = "utf-8",
+    workers: Annotated[Optional[int], typer.Option(
+        "--workers", help="Processes resolving new strings (default: number of cores).")] = None,
+    bad_lines: Annotated[Optional[Path], typer.Option(
+        "--bad-lines", help="Write rows with the wrong number of fields here and go on.")] = None,
+    report: Annotated[Optional[Path], typer.Option("--report", help="Write the summary as JSON here.")] = None,
     quiet: QuietOpt = False,
 ) -> None:
-    """Append geo columns to every row of a CSV file, in input order."""
+    """Append geo columns to every row of a table, in input order."""
     from .batch import clean_file
     from .cache import Cache
 
     summary = clean_file(input, column, output, cache=Cache(cache), accept=accept, prefix=prefix,
-                         encoding=encoding, progress=_say(quiet))
+                         encoding=encoding, separator=separator, format=format, workers=workers,
+                         bad_lines=bad_lines, report=report, show_progress=not quiet and sys.stderr.isatty(),
+                         progress=_say(quiet))
     if not quiet:
         _print_summary(summary)
 
@@ -108,6 +119,8 @@ def _print_summary(summary) -> None:
     parts = ", ".join(f"{k} {v:,} ({shares[k]:.1%})" for k, v in summary.status.items())
     typer.echo(f"{summary.rows:,} rows, {summary.distinct:,} distinct strings "
                f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}", err=True)
+    if summary.bad_lines:
+        typer.echo(f"{summary.bad_lines:,} row(s) with the wrong number of fields were set aside", err=True)
     if summary.output and summary.output != "-":
         typer.echo(f"wrote {summary.output}", err=True)
 

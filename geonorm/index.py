@@ -609,6 +609,11 @@ class PlaceIndex:
             self._local.db = db
         return db
 
+    def reopen(self) -> None:
+        """Forget connections inherited from a parent process (call after fork)."""
+        self._local = threading.local()
+        self._lock = threading.Lock()
+
     def place(self, pid: int) -> Place:
         p = self._places.get(pid)
         if p is None:

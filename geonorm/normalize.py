@@ -152,7 +152,8 @@ class Part:
 @dataclass(frozen=True)
 class Query:
     raw: str
-    key: str                       # cache key: the whole folded string
+    key: str                       # cache key: canonical text (see normalize_key)
+    folded: str                    # the whole text folded for lookups, flags and emoji out
     parts: tuple[Part, ...]        # after noise removal
     flags: tuple[str, ...] = ()    # ISO codes from flag emoji
     postcodes: tuple[str, ...] = ()
@@ -193,34 +194,44 @@ _EMPTY_NOISE = NoisePhrases([], [], [])
 
 
 def _clean_text(raw: str) -> tuple[str, list[str]]:
-    """NFKC, flags out (returned as ISO codes), emoji and stray symbols to spaces."""
-    text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
-    text, flags = extract_flags(text)
+    """Flags out (returned as ISO codes), emoji and stray symbols to spaces."""
+    text, flags = extract_flags(raw)
     text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
     for ch in "#@\"!?*~":
         text = text.replace(ch, " ")
     return text, flags
 
 
-def _key(text: str, flags: list[str]) -> str:
-    key = fold(text)
-    if flags:
-        key = (key + " " + " ".join(f"[{c.lower()}]" for c in flags)).strip()
-    return key
+_SHORT_CAPS = re.compile(r"\b[A-Z]{2,3}\b")
 
 
 @lru_cache(maxsize=500_000)
 def normalize_key(raw: str) -> str:
-    """The cache key of a raw value (the ``key`` of ``normalize``), computed alone."""
-    return _key(*_clean_text(raw))
+    """The canonical form of a raw value; everything the resolver reads comes from it.
+
+    Unicode NFKC, zero-width joiners removed, casefolded, whitespace collapsed.
+    Two things survive that matter for reading: accents (Vietnamese "Áo" is
+    Austria, "ao" may be Angola's code) and capitals in two- or three-letter
+    words ("CAN" is a country code, "can" a verb). Case and spacing variants
+    share a key; the resolver's answer is a function of the key alone.
+    """
+    text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
+    caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
+    folded = text.casefold()
+    if caps and len(folded) == len(text):
+        chars = list(folded)
+        for start, word in caps.items():
+            chars[start:start + len(word)] = word
+        folded = "".join(chars)
+    return _WS.sub(" ", folded).strip()
 
 
 def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     """Normalise one raw value. Never raises; non-strings become empty queries."""
     if not isinstance(raw, str):
         raw = "" if raw is None else str(raw)
-    text, flags = _clean_text(raw)
-    key = _key(text, flags)
+    key = normalize_key(raw)
+    text, flags = _clean_text(key)
     noise = noise or _EMPTY_NOISE
     parts: list[Part] = []
     postcodes: list[str] = []
@@ -266,4 +277,5 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
         if tokens:
             parts.append(Part(tuple(tokens), folded, street))
     has_letters = any(c.isalpha() for c in key) or bool(flags)
-    return Query(raw, key, tuple(parts), tuple(flags), tuple(postcodes), streetlike, had_noise, has_letters)
+    return Query(raw, key, fold(text), tuple(parts), tuple(flags), tuple(postcodes), streetlike, had_noise,
+                 has_letters)

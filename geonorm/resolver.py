@@ -149,7 +149,7 @@ class Resolver:
         return normalize(raw, self.noise)
 
     def key(self, raw: object) -> str:
-        """The cache key of a raw value: its folded, whitespace-collapsed form."""
+        """The cache key of a raw value (see ``normalize_key``); answers depend on it alone."""
         if not isinstance(raw, str):
             raw = "" if raw is None else str(raw)
         return normalize_key(raw)
@@ -224,7 +224,7 @@ class Resolver:
                     by_span[key] = m
         covered = {(s.part, i) for s in spans for i in range(s.start, s.end)
                    if (s.part, s.start, s.key) in by_span}
-        if len(spans) == 1 and spans[0].key == query.key and by_span:
+        if len(spans) == 1 and spans[0].key == query.folded and by_span:
             covered = {(pi, i) for pi, p in enumerate(query.parts) for i in range(len(p.tokens))}
         # Words explained by nothing: try spelling-tolerant matching on them, and on
         # whole parts whose only exact readings are small places.

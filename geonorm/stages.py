@@ -112,9 +112,9 @@ class Segmenter:
     def spans(self, query: Query) -> list[Span]:
         # A name with separators in it ("Korea, Republic of"): the whole text first.
         if len(query.parts) > 1 and not query.flags:
-            hits = self._lookup(query.key)
+            hits = self._lookup(query.folded)
             if hits:
-                return [Span(0, 0, len(query.parts[0].tokens), query.key, hits)]
+                return [Span(0, 0, len(query.parts[0].tokens), query.folded, hits)]
         out: list[Span] = []
         for pi, part in enumerate(query.parts):
             out.extend(self._part_spans(pi, part))
@@ -177,21 +177,21 @@ class NotAPlaceStage:
         self.table = index.nonplace
 
     def resolve(self, query: Query) -> str:
-        raw = query.raw.strip()
+        raw = query.key
         if not raw:
             return "empty"
         if not query.has_letters:
             return "placeholder" if len(raw) <= 3 else "junk"
         if query.flags:
             return ""  # a flag is a place, whatever words surround it
-        keys = {query.key, re.sub(r"[^\w\s]", " ", query.key).strip(), " ".join(p.key for p in query.parts)}
+        keys = {query.folded, re.sub(r"[^\w\s]", " ", query.folded).strip(), " ".join(p.key for p in query.parts)}
         keys |= {re.sub(r"\s+", " ", k).strip() for k in keys}
         for k in keys - {""}:
             kind = self.table.get(k)
             if kind:
                 return {"empty_like": "placeholder"}.get(kind, kind)
-        bare = query.key.replace(" ", "")
-        if _IPV4.match(query.key) or _URL.search(query.raw.casefold()):
+        bare = query.folded.replace(" ", "")
+        if _IPV4.match(query.folded) or _URL.search(query.key):
             return "junk"
         if len(bare) >= 5 and bare.isalpha() and bare.isascii() and any(bare in row for row in _KEY_ROWS):
             return "junk"

@@ -19,8 +19,17 @@ def test_public_api_is_explicit():
 
 def test_resolve_series_returns_geo_columns():
     cols = geonorm.resolve_series(["Oslo", "", "Oslo", "Lisbon / Berlin"])
-    assert cols["country"] == ["NO", "", "NO", ""]
-    assert cols["status"] == ["matched", "not_a_place", "matched", "review"]
+    assert cols["geo_country"] == ["NO", "", "NO", ""]
+    assert cols["geo_status"] == ["matched", "not_a_place", "matched", "review"]
+
+
+def test_resolve_series_on_a_polars_column():
+    import polars as pl
+
+    frame = geonorm.resolve_series(pl.Series("loc", ["austin tx", None, "東京"]))
+    assert isinstance(frame, pl.DataFrame)
+    assert frame["geo_country"].to_list() == ["US", "", "JP"]
+    assert frame["geo_lat"][1] is None
 
 
 def test_demo_end_to_end(tmp_path):

@@ -82,7 +82,7 @@ def test_empty_file(tmp_path):
     r = runner.invoke(app, ["clean", str(src), "--column", "x", "--out", str(tmp_path / "o.csv"),
                             "--cache", str(tmp_path / "c.db")])
     assert r.exit_code == 1
-    assert r.stderr == f"Error: {src} is empty\nHint: pass a CSV file with a header line\n"
+    assert r.stderr == f"Error: {src} is empty\nHint: pass a file with a header line and rows\n"
 
 
 def test_wrong_encoding_suggests_option(tmp_path):

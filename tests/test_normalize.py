@@ -5,7 +5,7 @@ from __future__ import annotations
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from geonorm.normalize import NoisePhrases, extract_flags, fold, normalize
+from geonorm.normalize import NoisePhrases, extract_flags, fold, normalize, normalize_key
 
 
 def test_fold_keeps_non_latin_scripts_and_folds_accents():
@@ -60,7 +60,15 @@ def test_postcodes_recognised_by_format():
 @given(st.text())
 def test_normaliser_is_idempotent_and_never_raises(text):
     first = normalize(text)
-    assert normalize(first.key).key == first.key
+    again = normalize(first.key)
+    assert again.key == first.key
+    assert (again.parts, again.flags, again.postcodes) == (first.parts, first.flags, first.postcodes)
+
+
+def test_key_keeps_short_capitals_and_accents():
+    assert normalize_key("  Toronto,   CAN ") == "toronto, CAN"
+    assert normalize_key("Áo") == "áo"
+    assert normalize_key("PARIS") == normalize_key("paris")
 
 
 @given(st.one_of(st.none(), st.integers(), st.floats(allow_nan=True)))
