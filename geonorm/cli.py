@@ -181,3 +181,7 @@ def gazetteer_info(
 
 def main() -> None:  # pragma: no cover
     app()
+
+
+if __name__ == "__main__":  # pragma: no cover
+    app()

@@ -217,7 +217,7 @@ def normalize_key(raw: str) -> str:
     """
     text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
     caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
-    folded = text.casefold()
+    folded = unicodedata.normalize("NFKC", text.casefold())  # NFKC again: casefold may decompose
     if caps and len(folded) == len(text):
         chars = list(folded)
         for start, word in caps.items():
