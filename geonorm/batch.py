@@ -105,20 +105,21 @@ def _resolve_misses(resolver: Resolver, misses: list[str], workers: int, cache: 
 
 def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None = None,
                    cache: Cache | None = None, accept: float | None = None, workers: int = 1,
-                   summary: CleanSummary | None = None,
+                   summary: CleanSummary | None = None, keyed: bool = False,
                    on_misses: Callable[[int], Callable[[int], None]] | None = None) -> dict[str, Resolution]:
     """Resolve the distinct keys of ``values`` (or of a value → row-count dict).
 
     Returns key → Resolution with the accept threshold and the file prior applied.
     ``on_misses(n)`` is told how many strings need resolving and returns a
-    function called with each chunk's size (for a progress bar).
+    function called with each chunk's size (for a progress bar). ``keyed`` says
+    the values are cache keys already.
     """
     resolver = resolver or Resolver(accept=DEFAULT_ACCEPT if accept is None else accept)
     accept = resolver.accept if accept is None else accept
     counts: Counter[str] = Counter()
     pairs = values.items() if isinstance(values, dict) else ((v, 1) for v in values)
     for v, n in pairs:
-        counts[resolver.key(v)] += n
+        counts[v if keyed else resolver.key(v)] += n
     version = resolver.version
     found = cache.get_many(counts, version) if cache else {}
     misses = sorted(k for k in counts if k not in found)
@@ -127,7 +128,7 @@ def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None
     results = {**found, **fresh}
     for r in results.values():
         _accept(r, accept)
-    resolver.apply_file_prior(results, counts, {k: k for k in counts})
+    resolver.apply_file_prior(results, counts)
     if summary is not None:
         summary.distinct = len(counts)
         summary.cache_hits = len(found)
@@ -233,7 +234,7 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
                 return bar.task(f"resolving ({summary.rows:,} rows)", n)
 
             results = resolve_values(dict(key_counts), resolver=resolver, cache=cache, accept=accept,
-                                     workers=workers, summary=summary, on_misses=on_misses)
+                                     workers=workers, summary=summary, keyed=True, on_misses=on_misses)
             mapping = {v: geo_values(results[keys[v]]) for v in counts}
             status: Counter[str] = Counter()
             for v, n in counts.items():

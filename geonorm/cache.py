@@ -1,10 +1,11 @@
 """SQLite cache of resolutions: one row per distinct normalised string.
 
-The table ``resolution`` holds the whole answer (candidates too) as JSON, with
-the resolver and index version that produced it and timestamps. A row made by
-another resolver version or accept threshold is treated as a miss, so a new
-index never serves stale answers. WAL mode lets a reader and a writer share
-the file; writes are batched in one transaction per chunk.
+The table ``resolution`` holds the whole answer: the geo fields as columns and
+the candidates and per-country evidence as JSON, with the resolver, index and
+calibration version that produced it, and timestamps. A row made by another
+version is a miss, so a new index never serves stale answers. WAL mode lets a
+reader and a writer share the file; writes are batched in one transaction per
+chunk, so an interrupted run keeps what it committed.
 """
 
 from __future__ import annotations
@@ -20,9 +21,13 @@ import sqlite_utils
 
 from .errors import CacheError
 from .index import data_dir
-from .resolution import Resolution
+from .resolution import Candidate, Reason, Resolution, Status
 
-__all__ = ["Cache", "default_cache_path"]
+__all__ = ["Cache", "default_cache_path", "CACHE_SCHEMA"]
+
+CACHE_SCHEMA = 2  # layout of the resolution table; another value means: rebuild that table
+# Reasons whose answers the file prior may re-rank: their evidence is read back.
+_DETAILED = {Reason.AMBIGUOUS.value, Reason.CITY_BY_SIZE.value, Reason.SEVERAL_COUNTRIES.value}
 
 
 def default_cache_path() -> Path:
@@ -35,40 +40,60 @@ class Cache:
         self.path = Path(path) if path else default_cache_path()
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
-            conn = sqlite3.connect(self.path, timeout=30, check_same_thread=False)
+            conn = sqlite3.connect(self.path, timeout=60, check_same_thread=False)
             self.db = sqlite_utils.Database(conn)
             self.db.execute("PRAGMA journal_mode=WAL")
             self.db.execute("PRAGMA synchronous=NORMAL")
+            if self.db.execute("PRAGMA user_version").fetchone()[0] != CACHE_SCHEMA:
+                with conn:
+                    if "resolution" in self.db.table_names():
+                        self.db["resolution"].drop()
+                    conn.execute(f"PRAGMA user_version = {CACHE_SCHEMA}")
             if "resolution" not in self.db.table_names():
                 self.db["resolution"].create(
-                    {"key": str, "version": str, "status": str, "country": str, "confidence": float,
-                     "reason": str, "data": str, "created": str, "updated": str},
+                    {"key": str, "version": str, "status": str, "reason": str, "country": str,
+                     "subdivision": str, "city": str, "lat": float, "lon": float, "geonameid": int,
+                     "confidence": float, "score": float, "detail": str, "created": str, "updated": str},
                     pk="key",
                 )
         except (sqlite3.DatabaseError, OSError) as exc:
             raise CacheError(f"cannot open the cache at {self.path} ({exc})",
                              hint="pass another file with --cache PATH, or delete the damaged file") from exc
 
-    def get_many(self, keys: Iterable[str], version: str) -> dict[str, Resolution]:
-        """Look up many keys in a few queries (not one query per key)."""
+    def get_many(self, keys: Iterable[str], version: str, full: bool = False) -> dict[str, Resolution]:
+        """Look up many keys in a few queries (not one query per key).
+
+        Candidates and evidence are read back for the answers a file prior may
+        re-rank, or for all with ``full``.
+        """
         keys = list(keys)
         out: dict[str, Resolution] = {}
         for i in range(0, len(keys), 900):
             batch = keys[i:i + 900]
             marks = ",".join("?" * len(batch))
             rows = self.db.execute(
-                f"SELECT key, data FROM resolution WHERE version = ? AND key IN ({marks})", [version, *batch]
+                "SELECT key, status, reason, country, subdivision, city, lat, lon, geonameid, confidence, score, "
+                f"detail FROM resolution WHERE version = ? AND key IN ({marks})", [version, *batch]
             ).fetchall()
-            for key, data in rows:
-                out[key] = Resolution.from_dict(json.loads(data))
+            for key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail in rows:
+                res = Resolution(Status(status), Reason(reason), country, sub, city, lat, lon, gid, conf, score)
+                if full or reason in _DETAILED:
+                    extra = json.loads(detail)
+                    res.candidates = [Candidate(**c) for c in extra["candidates"]]
+                    res.evidence = extra["evidence"]
+                elif country:
+                    res.evidence = {country: 1.0}
+                out[key] = res
         return out
 
     def put_many(self, items: Mapping[str, Resolution], version: str) -> None:
+        """Store answers in one transaction."""
         now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
         rows = [
-            {"key": k, "version": version, "status": r.status.value, "country": r.country,
-             "confidence": r.confidence, "reason": r.reason.value,
-             "data": json.dumps(r.to_dict(), ensure_ascii=False, sort_keys=True), "created": now, "updated": now}
+            (k, version, r.status.value, r.reason.value, r.country, r.subdivision, r.city, r.lat, r.lon,
+             r.geonameid, r.confidence, r.score,
+             json.dumps({"candidates": [c.__dict__ for c in r.candidates], "evidence": r.evidence},
+                        ensure_ascii=False), now, now)
             for k, r in items.items()
         ]
         if not rows:
@@ -76,11 +101,14 @@ class Cache:
         try:
             with self.db.conn:
                 self.db.conn.executemany(
-                    "INSERT INTO resolution (key, version, status, country, confidence, reason, data, created, "
-                    "updated) VALUES (:key, :version, :status, :country, :confidence, :reason, :data, :created, "
-                    ":updated) ON CONFLICT(key) DO UPDATE SET version=excluded.version, status=excluded.status, "
-                    "country=excluded.country, confidence=excluded.confidence, reason=excluded.reason, "
-                    "data=excluded.data, updated=excluded.updated", rows)
+                    "INSERT INTO resolution (key, version, status, reason, country, subdivision, city, lat, lon, "
+                    "geonameid, confidence, score, detail, created, updated) "
+                    "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?) ON CONFLICT(key) DO UPDATE SET "
+                    "version=excluded.version, status=excluded.status, reason=excluded.reason, "
+                    "country=excluded.country, subdivision=excluded.subdivision, city=excluded.city, "
+                    "lat=excluded.lat, lon=excluded.lon, geonameid=excluded.geonameid, "
+                    "confidence=excluded.confidence, score=excluded.score, detail=excluded.detail, "
+                    "updated=excluded.updated", rows)
         except sqlite3.DatabaseError as exc:
             raise CacheError(f"cannot write to the cache at {self.path} ({exc})",
                              hint="check the disk has space and the file is writable") from exc

@@ -599,7 +599,7 @@ class PlaceIndex:
             if p.kind == "country":
                 self.countries[p.cc] = p
         self.subdivisions = {p.sub: p for p in self._places.values() if p.kind == "subdivision"}
-        self._fuzzy_blocks: dict[str, tuple[list[str], list[tuple[int, str]]]] = {}
+        self._fuzzy_blocks: dict[str, dict[int, tuple[list[str], list[tuple[int, str]]]]] = {}
         self._lock = threading.Lock()
 
     def _db(self) -> sqlite3.Connection:
@@ -641,16 +641,26 @@ class PlaceIndex:
         ).fetchone()
         return row is not None
 
-    def fuzzy_block(self, first: str) -> tuple[list[str], list[tuple[int, str]]]:
-        """Names starting with ``first`` that typo matching may reach, with (place, origin)."""
+    def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], list[tuple[int, str]]]:
+        """Names typo matching may reach: starting with ``first``, within ``spread`` of ``length``
+        characters; with their (place, origin)."""
         with self._lock:
-            block = self._fuzzy_blocks.get(first)
-            if block is None:
+            by_length = self._fuzzy_blocks.get(first)
+            if by_length is None:
                 rows = self._db().execute("SELECT key, place, origin FROM fuzzy WHERE block = ?",
                                           (first,)).fetchall()
-                block = ([r[0] for r in rows], [(r[1], ORIGINS[r[2]]) for r in rows])
-                self._fuzzy_blocks[first] = block
-            return block
+                by_length = {}
+                for key, place, origin in rows:
+                    keys, targets = by_length.setdefault(len(key), ([], []))
+                    keys.append(key)
+                    targets.append((place, ORIGINS[origin]))
+                self._fuzzy_blocks[first] = by_length
+        keys, targets = [], []
+        for n in range(length - spread, length + spread + 1):
+            if n in by_length:
+                keys.extend(by_length[n][0])
+                targets.extend(by_length[n][1])
+        return keys, targets
 
     def __hash__(self) -> int:  # for lru_cache on methods
         return id(self)

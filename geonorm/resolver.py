@@ -154,7 +154,7 @@ class Resolver:
             raw = "" if raw is None else str(raw)
         return normalize_key(raw)
 
-    def resolve(self, raw: object, prior: Mapping[str, float] | None = None) -> Resolution:
+    def resolve(self, raw: object) -> Resolution:
         """Resolve one string. Never raises on any text."""
         query = self.normalize(raw)
         kind = self.not_a_place.resolve(query)
@@ -162,17 +162,34 @@ class Resolver:
             return Resolution(Status.NOT_A_PLACE, NOT_A_PLACE_REASON.get(kind, Reason.JUNK), confidence=1.0,
                               score=1.0)
         mentions = self.mentions(query)
-        res = self._decide(query, mentions, prior)
+        res = self._decide(query, mentions)
         res.confidence = round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
         return apply_accept(res, self.accept)
 
-    def reconsider(self, raw: object, res: Resolution, prior: Mapping[str, float]) -> Resolution:
-        """Re-rank an ambiguous answer with the file's country prior."""
-        again = self.resolve(raw, prior)
-        if again.country != res.country or again.confidence > res.confidence:
-            again.reason = Reason.FILE_PRIOR
-            return again
-        return res
+    def reconsider(self, res: Resolution, prior: Mapping[str, float]) -> Resolution:
+        """Re-rank an ambiguous answer with the file's country prior.
+
+        The answer's per-country evidence is multiplied by the prior (tempered by
+        ``PRIOR_EXPONENT``); if that changes the country, or makes it surer, the
+        answer is rebuilt from the candidate of the new country.
+        """
+        if not res.evidence:
+            return res
+        weighted = {c: v * (prior.get(c, 0.0) + 0.02) ** PRIOR_EXPONENT for c, v in res.evidence.items()}
+        total = sum(weighted.values())
+        top = max(weighted, key=lambda c: (weighted[c], c))
+        p_new, p_old = weighted[top] / total, res.evidence.get(res.country, 0.0)
+        if top == res.country and p_new <= p_old:
+            return res
+        cand = next((c for c in res.candidates if c.country == top), Candidate(top))
+        new = replace(res, country=top, evidence={c: round(v / total, 4) for c, v in weighted.items()},
+                      reason=Reason.FILE_PRIOR)
+        if top != res.country:
+            new.subdivision, new.city, new.lat, new.lon, new.geonameid = (
+                cand.subdivision, cand.city, cand.lat, cand.lon, None)
+        new.score = max(1e-4, min(0.9999, res.score * p_new / max(p_old, 1e-4)))
+        new.confidence = round(self.calibration.apply(new.score, Reason.FILE_PRIOR), 4)
+        return apply_accept(new, self.accept)
 
     def resolve_many(self, values: Mapping[str, int] | Iterable[str]) -> dict[str, Resolution]:
         """Resolve distinct strings (optionally with row counts) with a file-level prior.
@@ -182,17 +199,16 @@ class Resolver:
         """
         counts = dict(values) if isinstance(values, Mapping) else Counter(values)
         results = {v: self.resolve(v) for v in counts}
-        return self.apply_file_prior(results, counts, {v: v for v in counts})
+        return self.apply_file_prior(results, counts)
 
-    def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int],
-                         raw: Mapping[str, object]) -> dict[str, Resolution]:
+    def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int]) -> dict[str, Resolution]:
         """Re-rank the ambiguous answers of one file with the file's country prior (in place)."""
         prior = self.file_prior({k: (results[k], n) for k, n in counts.items()})
         if prior:
             for k, res in results.items():
                 if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
                         and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE):
-                    results[k] = self.reconsider(raw[k], res, prior)
+                    results[k] = self.reconsider(res, prior)
         return results
 
     @staticmethod
@@ -372,7 +388,7 @@ class Resolver:
             dist = {c: v / total for c, v in dist.items()}
         return dist, kept
 
-    def _decide(self, query: Query, mentions: list[Mention], prior: Mapping[str, float] | None) -> Resolution:
+    def _decide(self, query: Query, mentions: list[Mention]) -> Resolution:
         if not mentions:
             return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
         groups, qualifiers = self._group(mentions)
@@ -408,8 +424,6 @@ class Resolver:
             dists = strong or dists
         countries = set().union(*(d.keys() for _, d, _ in dists))
         joint = {c: math.prod(d.get(c, 0.0) for _, d, _ in dists) for c in countries}
-        if prior:
-            joint = {c: v * (prior.get(c, 0.0) + 0.02) ** PRIOR_EXPONENT for c, v in joint.items()}
         total = sum(joint.values())
         bests = [max(d, key=lambda c: (d[c], c)) for _, d, _ in dists]
         distinct = sorted(set(bests), key=bests.index)
@@ -426,7 +440,7 @@ class Resolver:
         self._fill(res, query, dists, top, qualifiers)
         res.score = self._score(p, res, query, dists)
         res.candidates = [self._candidate(c, [r for _, _, kept in dists for r in kept], evidence[c])
-                          for c in list(evidence)[:4]]
+                          for c in evidence]
         return res
 
     @staticmethod

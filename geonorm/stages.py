@@ -352,10 +352,10 @@ class FuzzyStage:
         return 1 if len(text) <= 8 else 2
 
     def match(self, phrase: str, pi: int, start: int) -> Mention | None:
-        keys, targets = self.index.fuzzy_block(phrase[0])
+        limit = self.max_edits(phrase)
+        keys, targets = self.index.fuzzy_block(phrase[0], len(phrase), limit)
         if not keys:
             return None
-        limit = self.max_edits(phrase)
         matches = process.extract(phrase, keys, scorer=OSA.distance, score_cutoff=limit, limit=8)
         matches = [m for m in matches if m[0] != phrase]
         if not matches:
