@@ -24,7 +24,7 @@ from .cache import Cache
 from .errors import InputError
 from .formats import count_values, find_ragged, open_source, output_format, read_header, set_aside, write_output
 from .resolution import Resolution, Status
-from .resolver import DEFAULT_ACCEPT, Resolver
+from .resolver import DEFAULT_ACCEPT, Resolver, apply_accept
 
 __all__ = ["GEO_FIELDS", "CleanSummary", "clean_file", "resolve_values", "resolve_series", "geo_values"]
 
@@ -127,19 +127,13 @@ def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None
     fresh = _resolve_misses(resolver, misses, workers, cache, version, advance)
     results = {**found, **fresh}
     for r in results.values():
-        _accept(r, accept)
+        apply_accept(r, accept)
     resolver.apply_file_prior(results, counts)
     if summary is not None:
         summary.distinct = len(counts)
         summary.cache_hits = len(found)
         summary.resolved = len(fresh)
     return results
-
-
-def _accept(res: Resolution, accept: float) -> None:
-    from .resolver import apply_accept
-
-    apply_accept(res, accept)
 
 
 class _Progress:
@@ -235,7 +229,8 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
 
             results = resolve_values(dict(key_counts), resolver=resolver, cache=cache, accept=accept,
                                      workers=workers, summary=summary, keyed=True, on_misses=on_misses)
-            mapping = {v: geo_values(results[keys[v]]) for v in counts}
+            by_key = {k: geo_values(r) for k, r in results.items()}
+            mapping = {v: by_key[keys[v]] for v in counts}
             status: Counter[str] = Counter()
             for v, n in counts.items():
                 status[mapping[v][-1]] += n

@@ -28,6 +28,8 @@ __all__ = ["Cache", "default_cache_path", "CACHE_SCHEMA"]
 CACHE_SCHEMA = 2  # layout of the resolution table; another value means: rebuild that table
 # Reasons whose answers the file prior may re-rank: their evidence is read back.
 _DETAILED = {Reason.AMBIGUOUS.value, Reason.CITY_BY_SIZE.value, Reason.SEVERAL_COUNTRIES.value}
+_STATUS = {s.value: s for s in Status}
+_REASON = {r.value: r for r in Reason}
 
 
 def default_cache_path() -> Path:
@@ -76,7 +78,7 @@ class Cache:
                 f"detail FROM resolution WHERE version = ? AND key IN ({marks})", [version, *batch]
             ).fetchall()
             for key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail in rows:
-                res = Resolution(Status(status), Reason(reason), country, sub, city, lat, lon, gid, conf, score)
+                res = Resolution(_STATUS[status], _REASON[reason], country, sub, city, lat, lon, gid, conf, score)
                 if full or reason in _DETAILED:
                     extra = json.loads(detail)
                     res.candidates = [Candidate(**c) for c in extra["candidates"]]

@@ -364,13 +364,15 @@ def write_output(source: Source, column: str, mapping: dict[str | None, list], g
         raise
 
 
-# Positions of the numeric geo fields (lat, lon, confidence) and their text precision.
-_NUMERIC = {3: "{:.5f}", 4: "{:.5f}", 5: "{:.3f}"}
+# Positions of the numeric geo fields: lat, lon, confidence.
+_NUMERIC = (3, 4, 5)
 
 
 def as_text_row(geo: list) -> list[str]:
     """Geo values for a text format: numbers with fixed decimals, missing as empty."""
-    return [("" if v is None else _NUMERIC[i].format(v)) if i in _NUMERIC else v for i, v in enumerate(geo)]
+    country, sub, city, lat, lon, conf, reason, status = geo
+    return [country, sub, city, "" if lat is None else f"{lat:.5f}", "" if lon is None else f"{lon:.5f}",
+            "" if conf is None else f"{conf:.3f}", reason, status]
 
 
 def _mapping_frame(mapping: dict[str | None, list], geo_names: list[str], typed: bool) -> pl.DataFrame:

@@ -641,6 +641,7 @@ class PlaceIndex:
         ).fetchone()
         return row is not None
 
+    @lru_cache(maxsize=4096)  # noqa: B019 - the index lives as long as the process
     def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], list[tuple[int, str]]]:
         """Names typo matching may reach: starting with ``first``, within ``spread`` of ``length``
         characters; with their (place, origin)."""

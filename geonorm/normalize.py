@@ -215,9 +215,14 @@ def normalize_key(raw: str) -> str:
     words ("CAN" is a country code, "can" a verb). Case and spacing variants
     share a key; the resolver's answer is a function of the key alone.
     """
-    text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
-    caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
-    folded = unicodedata.normalize("NFKC", text.casefold())  # NFKC again: casefold may decompose
+    if raw.isascii():  # the common case: NFKC changes nothing, casefold is lower
+        text = raw
+        caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
+        folded = text.lower()
+    else:
+        text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
+        caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
+        folded = unicodedata.normalize("NFKC", text.casefold())  # NFKC again: casefold may decompose
     if caps and len(folded) == len(text):
         chars = list(folded)
         for start, word in caps.items():

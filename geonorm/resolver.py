@@ -203,7 +203,7 @@ class Resolver:
 
     def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int]) -> dict[str, Resolution]:
         """Re-rank the ambiguous answers of one file with the file's country prior (in place)."""
-        prior = self.file_prior({k: (results[k], n) for k, n in counts.items()})
+        prior = self.file_prior(results, counts)
         if prior:
             for k, res in results.items():
                 if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
@@ -212,11 +212,14 @@ class Resolver:
         return results
 
     @staticmethod
-    def file_prior(results: Mapping[str, tuple[Resolution, int]], min_rows: int = 50) -> dict[str, float]:
+    def file_prior(results: Mapping[str, Resolution], counts: Mapping[str, int],
+                   min_rows: int = 50) -> dict[str, float]:
         """Country shares among confidently matched rows, by row count (Laplace-smoothed)."""
         tally: Counter[str] = Counter()
-        for res, n in results.values():
-            if res.status == Status.MATCHED and res.confidence >= 0.9 and res.reason != Reason.FILE_PRIOR:
+        matched, file_prior = Status.MATCHED, Reason.FILE_PRIOR
+        for k, n in counts.items():
+            res = results[k]
+            if res.status is matched and res.confidence >= 0.9 and res.reason is not file_prior:
                 tally[res.country] += n
         total = sum(tally.values())
         if total < min_rows:
@@ -244,10 +247,13 @@ class Resolver:
             covered = {(pi, i) for pi, p in enumerate(query.parts) for i in range(len(p.tokens))}
         # Words explained by nothing: try spelling-tolerant matching on them, and on
         # whole parts whose only exact readings are small places.
+        # A part explained only by small places may be a misspelt big one ("Johannesberg"
+        # is a German village); a town of 5,000+ met by its own name is taken as written.
         weak_parts = {m.part for m in by_span.values()} - {
             m.part for m in by_span.values()
             if max(r.place.pop for r in m.readings) >= 15000
-            or any(_is_container_reading(r) or r.place.kind == "region" for r in m.readings)}
+            or any(_is_container_reading(r) or r.place.kind == "region" or r.origin == "alias"
+                   or r.origin == "name" and r.place.pop >= 5000 for r in m.readings)}
         for pi in weak_parts:
             covered -= {(pi, i) for i in range(len(query.parts[pi].tokens))}
         fuzzy = self.fuzzy.resolve(query, covered)
