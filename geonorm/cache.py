@@ -70,13 +70,16 @@ class Cache:
         """
         keys = list(keys)
         out: dict[str, Resolution] = {}
-        for i in range(0, len(keys), 900):
-            batch = keys[i:i + 900]
-            marks = ",".join("?" * len(batch))
-            rows = self.db.execute(
-                "SELECT key, status, reason, country, subdivision, city, lat, lon, geonameid, confidence, score, "
-                f"detail FROM resolution WHERE version = ? AND key IN ({marks})", [version, *batch]
-            ).fetchall()
+        columns = ("SELECT key, status, reason, country, subdivision, city, lat, lon, geonameid, confidence, "
+                   "score, detail FROM resolution WHERE version = ?")
+        if len(keys) > 5000 and len(keys) * 4 >= self.count():
+            # Asking for a good part of the table: one sequential scan beats many IN queries.
+            wanted = set(keys)
+            batches = [[row for row in self.db.execute(columns, [version]) if row[0] in wanted]]
+        else:
+            batches = (self.db.execute(f"{columns} AND key IN ({','.join('?' * len(keys[i:i + 900]))})",
+                                       [version, *keys[i:i + 900]]).fetchall() for i in range(0, len(keys), 900))
+        for rows in batches:
             for key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail in rows:
                 res = Resolution(_STATUS[status], _REASON[reason], country, sub, city, lat, lon, gid, conf, score)
                 if full or reason in _DETAILED:
