@@ -128,6 +128,9 @@ def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None
     results = {**found, **fresh}
     for r in results.values():
         apply_accept(r, accept)
+    if cache is not None:  # people's decisions from the review queue win over every stage
+        for k, decision in cache.overrides(counts).items():
+            results[k] = Resolution.from_override(decision)
     resolver.apply_file_prior(results, counts)
     if summary is not None:
         summary.distinct = len(counts)
@@ -235,6 +238,8 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
             for v, n in counts.items():
                 status[mapping[v][-1]] += n
             write_output(source, column, mapping, geo_names, out_fmt, str(output))
+        if cache is not None and str(output) != "-":
+            cache.record_run(str(Path(output).resolve()), source.name, column)
     finally:
         source.cleanup()
     summary.status = {s.value: status.get(s.value, 0) for s in Status}

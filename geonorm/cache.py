@@ -51,6 +51,16 @@ class Cache:
                     if "resolution" in self.db.table_names():
                         self.db["resolution"].drop()
                     conn.execute(f"PRAGMA user_version = {CACHE_SCHEMA}")
+            tables = self.db.table_names()
+            if "override" not in tables:
+                self.db["override"].create(
+                    {"key": str, "text": str, "country": str, "subdivision": str, "city": str, "lat": float,
+                     "lon": float, "geonameid": int, "not_a_place": int, "note": str, "decided_at": str,
+                     "source": str}, pk="key")
+            if "queue" not in tables:
+                self.db["queue"].create({"key": str, "text": str, "exported_at": str, "file": str}, pk="key")
+            if "run" not in tables:
+                self.db["run"].create({"output": str, "input": str, "column": str, "at": str}, pk="output")
             if "resolution" not in self.db.table_names():
                 self.db["resolution"].create(
                     {"key": str, "version": str, "status": str, "reason": str, "country": str,
@@ -117,6 +127,55 @@ class Cache:
         except sqlite3.DatabaseError as exc:
             raise CacheError(f"cannot write to the cache at {self.path} ({exc})",
                              hint="check the disk has space and the file is writable") from exc
+
+    # -- human decisions ------------------------------------------------------
+    def overrides(self, keys: Iterable[str] | None = None) -> dict[str, dict]:
+        """Stored decisions, by key (all of them, or those of ``keys``)."""
+        cols = ("key, text, country, subdivision, city, lat, lon, geonameid, not_a_place, note, decided_at, "
+                "source")
+        if keys is None:
+            rows = self.db.execute(f"SELECT {cols} FROM override ORDER BY decided_at, key").fetchall()
+        else:
+            keys = list(keys)
+            rows = []
+            for i in range(0, len(keys), 900):
+                batch = keys[i:i + 900]
+                rows += self.db.execute(f"SELECT {cols} FROM override WHERE key IN ({','.join('?' * len(batch))})",
+                                        batch).fetchall()
+        names = [c.strip() for c in cols.split(",")]
+        return {r[0]: dict(zip(names, r)) for r in rows}
+
+    def put_overrides(self, decisions: list[dict]) -> None:
+        """Store decisions in one transaction."""
+        with self.db.conn:
+            self.db["override"].upsert_all(decisions, pk="key")
+
+    def delete_override(self, key: str) -> bool:
+        with self.db.conn:
+            cur = self.db.conn.execute("DELETE FROM override WHERE key = ?", (key,))
+        return cur.rowcount > 0
+
+    def put_queue(self, entries: list[dict]) -> None:
+        with self.db.conn:
+            self.db["queue"].upsert_all(entries, pk="key")
+
+    def queued(self, keys: Iterable[str]) -> set[str]:
+        keys = list(keys)
+        found: set[str] = set()
+        for i in range(0, len(keys), 900):
+            batch = keys[i:i + 900]
+            found |= {r[0] for r in self.db.execute(
+                f"SELECT key FROM queue WHERE key IN ({','.join('?' * len(batch))})", batch)}
+        return found
+
+    def record_run(self, output: str, input: str, column: str) -> None:
+        now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+        with self.db.conn:
+            self.db["run"].upsert({"output": output, "input": input, "column": column, "at": now}, pk="output")
+
+    def run_column(self, output: str) -> str | None:
+        row = self.db.execute("SELECT column FROM run WHERE output = ?", (output,)).fetchone()
+        return row[0] if row else None
 
     def count(self) -> int:
         return self.db["resolution"].count

@@ -146,6 +146,147 @@ def demo(
         out.print(f"{label}: {path}", markup=False)
 
 
+review_app = typer.Typer(help="The review loop: export doubtful strings, apply people's decisions.",
+                         no_args_is_help=True)
+app.add_typer(review_app, name="review")
+
+
+@review_app.command("export")
+@handle_errors
+def review_export(
+    cleaned: Annotated[Path, typer.Argument(help="A file written by geonorm clean.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Where to write the queue (CSV).")],
+    column: Annotated[Optional[str], typer.Option(
+        "--column", "-c", help="The location column (default: the one geonorm clean used).")] = None,
+    below: Annotated[Optional[float], typer.Option(
+        "--below", min=0.0, max=1.0, help="Also queue matched strings with confidence below this.")] = None,
+    top: Annotated[Optional[int], typer.Option("--top", min=1, help="Keep only the N most impactful lines.")] = None,
+    prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the geo columns.")] = "geo_",
+    cache: CacheOpt = None,
+) -> None:
+    """Write one line per doubtful distinct text, ranked by rows affected × doubt."""
+    from .cache import Cache
+    from .review import export_queue
+
+    n = export_queue(cleaned, out, column=column, below=below, top=top, prefix=prefix, cache=Cache(cache))
+    typer.echo(f"wrote {n:,} line(s) to {out}; fill in decision_country (ISO code or not_a_place), "
+               "optionally decision_subdivision, decision_city and decision_note, then run: "
+               f"geonorm review apply {out}", err=True)
+
+
+@review_app.command("apply")
+@handle_errors
+def review_apply(
+    queue: Annotated[Path, typer.Argument(help="The queue CSV with decisions filled in.")],
+    dry_run: Annotated[bool, typer.Option("--dry-run", help="Check the decisions, store nothing.")] = False,
+    cache: CacheOpt = None,
+) -> None:
+    """Validate the decisions and store the valid ones as overrides."""
+    from .cache import Cache
+    from .review import apply_decisions
+
+    rep = apply_decisions(queue, cache=Cache(cache), dry_run=dry_run)
+    for problem in rep.problems:
+        typer.echo(f"{queue}: {problem}", err=True)
+    verb = "would store" if dry_run else "stored"
+    typer.echo(f"{verb} {rep.stored} decision(s) ({rep.new} new, {rep.changed} changed); {rep.unchanged} "
+               f"unchanged, {rep.skipped} line(s) without a decision, {len(rep.problems)} with problems", err=True)
+    if rep.problems:
+        typer.echo("Hint: fix the lines above and apply the file again; applying twice changes nothing", err=True)
+        raise typer.Exit(1)
+
+
+@review_app.command("list")
+@handle_errors
+def review_list(
+    cache: CacheOpt = None,
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
+) -> None:
+    """List the stored decisions."""
+    from .cache import Cache
+
+    decisions = list(Cache(cache).overrides().values())
+    if as_json:
+        out.print_json(json.dumps(decisions, ensure_ascii=False))
+        return
+    table = Table()
+    for col in ("text", "decision", "note", "decided_at"):
+        table.add_column(col, overflow="fold")
+    for d in decisions:
+        what = "not a place" if d["not_a_place"] else " / ".join(x for x in (d["city"], d["subdivision"],
+                                                                             d["country"]) if x)
+        table.add_row(d["text"], what, d["note"] or "", d["decided_at"])
+    out.print(table)
+
+
+@review_app.command("undo")
+@handle_errors
+def review_undo(
+    text: Annotated[str, typer.Argument(help="The text whose decision to remove (any case or spacing).")],
+    cache: CacheOpt = None,
+) -> None:
+    """Remove a stored decision; later runs resolve the text again."""
+    from .cache import Cache
+    from .review import undo
+
+    undo(text, cache=Cache(cache))
+    typer.echo(f"removed the decision for {text!r}", err=True)
+
+
+@app.command()
+@handle_errors
+def score(
+    labelled: Annotated[Path, typer.Argument(help="A file with location text and the true country.")],
+    column: Annotated[str, typer.Option("--column", "-c", help="The location text column.")],
+    truth: Annotated[str, typer.Option("--truth", help="Column with the true ISO 3166-1 alpha-2 code.")],
+    truth_subdivision: Annotated[Optional[str], typer.Option(
+        "--truth-subdivision", help="Column with the true ISO 3166-2 code.")] = None,
+    target_precision: Annotated[float, typer.Option(
+        "--target-precision", min=0.0, max=1.0, help="Find the threshold that reaches this precision.")] = 0.97,
+    accept: AcceptOpt = DEFAULT_ACCEPT,
+    as_json: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
+) -> None:
+    """Measure accuracy and calibration on a labelled sample."""
+    from .scoring import score_file
+
+    rep = score_file(labelled, column, truth, truth_subdivision=truth_subdivision, accept=accept,
+                     target_precision=target_precision)
+    if as_json:
+        out.print_json(json.dumps(rep.to_dict()))
+        return
+    out.print(f"{rep.rows} rows, {rep.positives} with a true country; at --accept {rep.accept:g}: "
+              f"{rep.matched} matched, precision {rep.precision:.3f}, recall {rep.recall:.3f}, F1 {rep.f1:.3f}",
+              markup=False)
+    if rep.subdivision_accuracy is not None:
+        out.print(f"subdivision right {rep.subdivision_accuracy:.3f} of {rep.subdivision_n} matched rows "
+                  "with a true subdivision", markup=False)
+    t = Table(title="Precision and coverage by threshold")
+    for col in ("threshold", "called", "precision", "coverage"):
+        t.add_column(col, justify="right")
+    for row in rep.by_threshold:
+        t.add_row(f"{row['threshold']:.2f}", str(row["called"]), f"{row['precision']:.3f}", f"{row['coverage']:.3f}")
+    out.print(t)
+    t = Table(title=f"Reliability (expected calibration error {rep.ece:.3f})")
+    for col in ("confidence", "answers", "mean confidence", "share right"):
+        t.add_column(col, justify="right")
+    for row in rep.reliability:
+        if row["n"]:
+            t.add_row(row["bin"], str(row["n"]), f"{row['mean_confidence']:.3f}", f"{row['accuracy']:.3f}")
+    out.print(t)
+    if rep.confusions:
+        t = Table(title="Most frequent confusions (matched rows)")
+        for col in ("truth", "given", "rows"):
+            t.add_column(col)
+        for c in rep.confusions:
+            t.add_row(c["truth"], c["given"], str(c["rows"]))
+        out.print(t)
+    if rep.threshold_for_target is not None:
+        out.print(f"--accept {rep.threshold_for_target:.2f} reaches precision {rep.target_precision:g} on this "
+                  f"sample (coverage {rep.coverage_at_target:.3f})", markup=False)
+    else:
+        out.print(f"no threshold reaches precision {rep.target_precision:g} on this sample", markup=False)
+
+
 @gazetteer_app.command("build")
 @handle_errors
 def gazetteer_build(

@@ -320,8 +320,9 @@ def set_aside(source: Source, expected: int, bad_path: Path) -> tuple[Source, in
             open(good, "w", encoding="utf-8", newline="") as fg, \
             open(bad_path, "w", encoding="utf-8", newline="") as fb:
         reader = csv.reader(fh, delimiter=source.separator)
-        wg = csv.writer(fg, delimiter=source.separator, lineterminator="\n")
-        wb = csv.writer(fb, lineterminator="\n")
+        # Quote every field: Python's writer would leave a lone \r unquoted.
+        wg = csv.writer(fg, delimiter=source.separator, lineterminator="\n", quoting=csv.QUOTE_ALL)
+        wb = csv.writer(fb, lineterminator="\n", quoting=csv.QUOTE_ALL)
         header = next(reader)
         wg.writerow(header)
         wb.writerow(["line", "fields", "record"])

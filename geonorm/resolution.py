@@ -40,6 +40,7 @@ class Reason(str, Enum):
     AMBIGUOUS = "ambiguous"
     FILE_PRIOR = "file_prior"
     NO_MATCH = "no_match"
+    REVIEWED = "reviewed"
 
 
 REASON_TEXT: dict[Reason, str] = {
@@ -64,6 +65,7 @@ REASON_TEXT: dict[Reason, str] = {
     Reason.AMBIGUOUS: "several readings of comparable weight",
     Reason.FILE_PRIOR: "an ambiguous name settled by the countries of the rest of the file",
     Reason.NO_MATCH: "nothing in the text matched the place index",
+    Reason.REVIEWED: "a person's decision, applied from the review queue (wins over every stage)",
 }
 
 
@@ -109,3 +111,13 @@ class Resolution:
         d["reason"] = Reason(d["reason"])
         d["candidates"] = [Candidate(**c) for c in d.get("candidates", [])]
         return cls(**d)
+
+    @classmethod
+    def from_override(cls, d: dict[str, Any]) -> Resolution:
+        """A person's decision as a resolution: it wins over every stage."""
+        if d.get("not_a_place"):
+            return cls(Status.NOT_A_PLACE, Reason.REVIEWED, confidence=1.0, score=1.0)
+        return cls(Status.MATCHED, Reason.REVIEWED, d["country"], d.get("subdivision") or "", d.get("city") or "",
+                   d.get("lat"), d.get("lon"), d.get("geonameid"), 1.0, 1.0,
+                   [Candidate(d["country"], d.get("subdivision") or "", d.get("city") or "", d.get("lat"),
+                              d.get("lon"), 1.0)], {d["country"]: 1.0})
