@@ -11,6 +11,7 @@ from pathlib import Path
 from .batch import clean_file
 from .cache import Cache
 from .errors import InputError
+from .review import export_queue
 
 __all__ = ["demo_file", "run_demo"]
 
@@ -31,12 +32,14 @@ def run_demo(out_dir: Path, progress: Callable[[str], None] | None = None) -> di
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     cleaned = out_dir / "members_clean.csv"
-    summary = clean_file(demo_file(), "location", cleaned, cache=Cache(out_dir / "cache.sqlite"),
-                         progress=progress)
+    cache = Cache(out_dir / "cache.sqlite")
+    summary = clean_file(demo_file(), "location", cleaned, cache=cache, progress=progress)
+    queue = out_dir / "review_queue.csv"
+    queued = export_queue(cleaned, queue, column="location", top=200, cache=cache)
     tally: Counter[str] = Counter()
     with open(cleaned, encoding="utf-8", newline="") as fh:
         for row in csv.DictReader(fh):
             if row["geo_status"] == "matched":
                 tally[row["geo_country"]] += 1
-    return {"summary": summary, "top_countries": tally.most_common(10),
-            "files": {"cleaned file": cleaned, "cache": out_dir / "cache.sqlite"}}
+    return {"summary": summary, "top_countries": tally.most_common(10), "queued": queued,
+            "files": {"cleaned file": cleaned, "review queue (top 200)": queue, "cache": out_dir / "cache.sqlite"}}

@@ -34,7 +34,7 @@ from .normalize import fold
 __all__ = ["INDEX_VERSION", "PlaceIndex", "Place", "NameHit", "build_index", "default_index_path",
            "data_dir", "gazetteer_dir", "load_index"]
 
-INDEX_VERSION = 1
+INDEX_VERSION = 2
 
 # Name origins, strongest first. Stored as small integers.
 ORIGINS = ("name", "alias", "code2", "code3", "postal", "sub_code", "alt", "translation",
@@ -80,6 +80,7 @@ class Place:
     lon: float | None
     pop: int
     gid: int | None    # GeoNames id
+    fame: int = 0      # how many alternate names GeoNames knows (a proxy for how widely it is known)
 
 
 @dataclass(frozen=True)
@@ -286,9 +287,9 @@ class _Builder:
         self.fuzzy: set[tuple[str, int, int]] = set()
 
     def add_place(self, kind: str, cc: str, sub: str, name: str, lat: float | None,
-                  lon: float | None, pop: int, gid: int | None) -> int:
+                  lon: float | None, pop: int, gid: int | None, fame: int = 0) -> int:
         pid = len(self.places) + 1
-        self.places.append((pid, kind, cc, sub, name, lat, lon, pop, gid))
+        self.places.append((pid, kind, cc, sub, name, lat, lon, pop, gid, fame))
         return pid
 
     def add_name(self, text: str, pid: int, origin: str, fuzzy: bool = False) -> None:
@@ -451,7 +452,8 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         cc = c["countrycode"]
         sub = admin1.get((cc, c.get("admin1code") or ""), "")
         pop = int(c.get("population") or 0)
-        pid = b.add_place("city", cc, sub, c["name"], c["latitude"], c["longitude"], pop, c["geonameid"])
+        pid = b.add_place("city", cc, sub, c["name"], c["latitude"], c["longitude"], pop, c["geonameid"],
+                          len(c.get("alternatenames") or ()))
         gid_pid[c["geonameid"]] = pid
         big = pop >= 15000
         b.add_name(c["name"], pid, "name", fuzzy=big)
@@ -533,7 +535,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         """
         PRAGMA journal_mode=OFF; PRAGMA synchronous=OFF;
         CREATE TABLE place(id INTEGER PRIMARY KEY, kind TEXT, cc TEXT, sub TEXT, name TEXT,
-                           lat REAL, lon REAL, pop INTEGER, gid INTEGER);
+                           lat REAL, lon REAL, pop INTEGER, gid INTEGER, fame INTEGER);
         CREATE TABLE name(key TEXT, place INTEGER, origin INTEGER);
         CREATE TABLE fuzzy(block TEXT, key TEXT, place INTEGER, origin INTEGER);
         CREATE TABLE nonplace(key TEXT PRIMARY KEY, kind TEXT);
@@ -542,7 +544,7 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         CREATE TABLE meta(key TEXT PRIMARY KEY, value TEXT);
         """
     )
-    db.executemany("INSERT INTO place VALUES (?,?,?,?,?,?,?,?,?)", b.places)
+    db.executemany("INSERT INTO place VALUES (?,?,?,?,?,?,?,?,?,?)", b.places)
     db.executemany("INSERT INTO name VALUES (?,?,?)", sorted(b.names))
     db.executemany("INSERT INTO fuzzy VALUES (?,?,?,?)", ((k[0], k, p, o) for k, p, o in sorted(b.fuzzy)))
     db.executemany("INSERT OR IGNORE INTO nonplace VALUES (?,?)", nonplace_rows)
@@ -630,8 +632,8 @@ class PlaceIndex:
         ).fetchall()
         hits = []
         for row in rows:
-            p = self._places.get(row[0]) or Place(*row[:9])
-            hits.append(NameHit(p, ORIGINS[row[9]]))
+            p = self._places.get(row[0]) or Place(*row[:10])
+            hits.append(NameHit(p, ORIGINS[row[10]]))
         return tuple(hits)
 
     def has_prefix(self, key: str) -> bool:

@@ -109,10 +109,12 @@ def export_queue(cleaned: str | Path, out: str | Path, *, column: str | None = N
         row = entry["row"]
         text = texts[key].most_common(1)[0][0]
         conf = float(row[p + "confidence"] or 0) if row[p + "country"] else 0.0
+        # Doubt: 1 − confidence for a guess; a world region is surely no single country (0.1).
+        doubt = 0.1 if row[p + "reason"] == "world_region" else 1 - conf
         res = resolver.resolve(key)
         alts = [c for c in res.candidates if c.country != row[p + "country"]][:3]
         lines.append({
-            "text": text, "rows": entry["rows"], "impact": round(entry["rows"] * (1 - conf), 2),
+            "text": text, "rows": entry["rows"], "impact": round(entry["rows"] * doubt, 2),
             "guess_country": row[p + "country"] or "", "guess_subdivision": row[p + "subdivision"] or "",
             "guess_city": row[p + "city"] or "", "confidence": f"{conf:.3f}" if row[p + "country"] else "",
             "reason": row[p + "reason"] or "",

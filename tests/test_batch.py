@@ -16,6 +16,7 @@ import pytest
 from typer.testing import CliRunner
 
 from geonorm.cli import app
+from geonorm.index import INDEX_VERSION
 
 runner = CliRunner()
 GEO = ["geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon", "geo_confidence", "geo_reason",
@@ -185,7 +186,7 @@ def test_report_json(tmp_path):
     rep = json.loads((tmp_path / "report.json").read_text())
     assert rep["rows"] == 3 and rep["distinct"] == 2
     assert rep["status"]["matched"] == 2 and rep["status_share"]["not_a_place"] == pytest.approx(1 / 3, abs=1e-3)
-    assert rep["versions"]["index_version"] == "1" and rep["versions"]["resolver"]
+    assert rep["versions"]["index_version"] == str(INDEX_VERSION) and rep["versions"]["resolver"]
 
 
 def _big_file(path, n_distinct):

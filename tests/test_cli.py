@@ -8,6 +8,7 @@ import json
 from typer.testing import CliRunner
 
 from geonorm.cli import app
+from geonorm.index import INDEX_VERSION
 
 runner = CliRunner()
 
@@ -106,7 +107,7 @@ def test_gazetteer_info():
     r = runner.invoke(app, ["gazetteer", "info", "--json"])
     assert r.exit_code == 0, r.output
     meta = json.loads(r.stdout)
-    assert int(meta["places_city"]) > 200_000 and meta["index_version"] == "1"
+    assert int(meta["places_city"]) > 200_000 and meta["index_version"] == str(INDEX_VERSION)
 
 
 def test_every_command_has_help():
