@@ -269,7 +269,7 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
                 lambda m: " " if any(c.isalpha() for c in m.group(0)) else m.group(0), stripped
             )
         for word in stripped.split():
-            word = word.strip("'-")
+            word = word.strip("'-+<>|")
             if not word:
                 continue
             if _NUMERIC_POSTCODE.match(word):

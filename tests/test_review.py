@@ -111,7 +111,7 @@ def test_decisions_stick_and_change_counts(small):
     by_text["xyzzy"].update(decision_country="not_a_place")
     by_text["San Jose"].update(decision_country="US", decision_subdivision="US-CA")
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n")
+        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
         w.writeheader()
         w.writerows(lines)
     dry = _invoke("review", "apply", queue, "--dry-run", "--cache", cache)
@@ -158,10 +158,17 @@ def test_every_invalid_decision_is_reported_by_line(small):
     by_text["xyzzy"].update(decision_country="NL", text="xyzzy edited")
     by_text["Victoria"].update(decision_country="can", decision_city="Victoria")  # valid: alpha-3 accepted
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n")
+        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
         w.writeheader()
         w.writerows(lines)
-    line_of = {x["text"]: i + 2 for i, x in enumerate(lines)}
+    line_of = {}  # physical line where each record starts (a quoted \r spans two lines)
+    with open(queue, encoding="utf-8", newline="") as fh:
+        reader = csv.reader(fh)
+        next(reader)
+        start = reader.line_num + 1
+        for rec in reader:
+            line_of[rec[0]] = start
+            start = reader.line_num + 1
     r = _invoke("review", "apply", queue, "--cache", cache)
     assert r.exit_code == 1
     expected = sorted([
@@ -191,7 +198,7 @@ def test_apply_while_clean_runs_loses_nothing(small, tmp_path):
     lines = _read(queue)
     lines[0].update(decision_country="ES")
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n")
+        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
         w.writeheader()
         w.writerows(lines)
     big = tmp_path / "big.csv"
