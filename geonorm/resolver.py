@@ -317,9 +317,12 @@ class Resolver:
                        default=0)
             if main >= 100_000:
                 # A large place called exactly this outweighs places that only carry the
-                # name as a variant or former name (Islamabad, not Chittagong's old name).
-                m.readings = [replace(r, weight=r.weight * 0.2) if r.origin in ("alt", "short") and
-                              r.place.kind == "city" else r for r in m.readings]
+                # name as a variant or former name (Islamabad, not Chittagong's old name),
+                # and a country whose name this is only in another language (Salvador, Bahia).
+                m.readings = [replace(r, weight=r.weight * 0.2) if (
+                    r.origin in ("alt", "short") and r.place.kind == "city"
+                    or r.origin == "translation" and r.place.kind == "country" and main >= 500_000)
+                    else r for r in m.readings]
             if any(r.origin == "alias" for r in m.readings):
                 # A curated nickname beats a code of the same letters (KL, LA, DC).
                 m.readings = [r for r in m.readings if r.origin not in ("code2", "code3", "postal", "sub_code")]
