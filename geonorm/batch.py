@@ -39,6 +39,7 @@ class CleanSummary:
     cache_hits: int = 0
     resolved: int = 0
     bad_lines: int = 0
+    remote: dict = field(default_factory=dict)
     seconds: float = 0.0
     status: dict[str, int] = field(default_factory=dict)
     output: str = ""
@@ -53,7 +54,7 @@ class CleanSummary:
 def geo_values(res: Resolution) -> list:
     """The geo column values of one resolution (numbers as numbers, missing as None)."""
     return [res.country, res.subdivision, res.city, res.lat, res.lon, round(res.confidence, 3),
-            res.reason.value, res.status.value]
+            res.reason_text, res.status.value]
 
 
 # -- the process pool ------------------------------------------------------
@@ -183,12 +184,19 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
                encoding: str = "utf-8", separator: str | None = None, format: str | None = None,
                input_format: str | None = None, workers: int | None = None, bad_lines: str | Path | None = None,
                report: str | Path | None = None, show_progress: bool = False,
-               progress: Callable[[str], None] | None = None) -> CleanSummary:
+               progress: Callable[[str], None] | None = None, remote=None, budget: int | None = None,
+               budget_total: int | None = None, refresh: bool = False, dry_run: bool = False,
+               transport=None) -> CleanSummary:
     """Clean ``column`` of ``input`` into ``output``; returns the summary.
 
     Formats: CSV, TSV, Parquet, JSON Lines (from the extension, or ``format``);
     ``"-"`` reads stdin or writes stdout. ``workers`` processes resolve new
     strings (default: the number of cores).
+
+    ``remote`` (an adapter, or a TOML file path or entry-point name) sends the
+    strings the cascade left doubtful to a remote geocoder, most rows first,
+    within ``budget`` requests this run and ``budget_total`` across runs;
+    ``dry_run`` only reports what would be sent and writes nothing.
     """
     started = time.perf_counter()
     summary = CleanSummary()
@@ -232,6 +240,13 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
 
             results = resolve_values(dict(key_counts), resolver=resolver, cache=cache, accept=accept,
                                      workers=workers, summary=summary, keyed=True, on_misses=on_misses)
+            if remote is not None:
+                cache = cache if isinstance(cache, Cache) else Cache()
+                _ask_remote(remote, results, key_counts, cache, resolver, accept, summary, budget=budget,
+                            budget_total=budget_total, refresh=refresh, dry_run=dry_run, transport=transport)
+                if dry_run:
+                    summary.rows, summary.output = summary.rows, ""
+                    return summary
             by_key = {k: geo_values(r) for k, r in results.items()}
             mapping = {v: by_key[keys[v]] for v in counts}
             status: Counter[str] = Counter()
@@ -256,6 +271,38 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
             raise InputError(f"cannot write the report {report} ({exc.strerror})",
                              hint="check the folder exists and is writable") from exc
     return summary
+
+
+def _ask_remote(remote, results: dict[str, Resolution], key_counts: Counter[str], cache: Cache,
+                resolver: Resolver, accept: float, summary: CleanSummary, **options) -> None:
+    """Send the doubtful rest to a remote geocoder and merge its answers (see ``remote.py``)."""
+    from .remote import load_adapter, merge, run_remote
+    from .resolution import Reason
+
+    adapter = load_adapter(remote) if isinstance(remote, (str, Path)) else remote
+    decided = set(cache.overrides(key_counts))
+    # Never a not_a_place, never a confident match; nor a continent or a string already
+    # known to name places in several countries: no service can give those one country.
+    wanted = [(k, n) for k, n in key_counts.items()
+              if k and k not in decided and results[k].status in (Status.REVIEW, Status.UNMATCHED)
+              and results[k].reason not in (Reason.WORLD_REGION, Reason.SEVERAL_COUNTRIES)]
+    stats = run_remote(adapter, wanted, cache, **options)
+    summary.remote = {"provider": stats.provider, "eligible": len(wanted), "already_answered": stats.from_cache,
+                      "planned": len(stats.planned), "requests": stats.requests, "answered": stats.answered,
+                      "with_results": stats.results, "no_result": stats.no_result, "errors": stats.errors,
+                      "rejected_results": stats.rejected, "retries": stats.retries,
+                      "breaker_open": stats.breaker_open, "over_budget": stats.stopped_by_budget,
+                      "messages": stats.messages,
+                      "top_planned": [{"text": k, "rows": n} for k, n in stats.planned[:20]]}
+    if options.get("dry_run"):
+        return
+    changed = 0
+    for key, answer in cache.remote_answers(adapter.name, [k for k, _ in wanted]).items():
+        merged = merge(results[key], answer, adapter.name, resolver.index, accept)
+        if merged is not results[key]:
+            changed += 1
+            results[key] = merged
+    summary.remote["strings_changed"] = changed
 
 
 def _version() -> str:

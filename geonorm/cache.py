@@ -59,6 +59,11 @@ class Cache:
                      "source": str}, pk="key")
             if "queue" not in tables:
                 self.db["queue"].create({"key": str, "text": str, "exported_at": str, "file": str}, pk="key")
+            if "remote_answer" not in tables:
+                self.db["remote_answer"].create({"provider": str, "key": str, "status": str, "answer": str,
+                                                 "asked_at": str}, pk=("provider", "key"))
+            if "remote_usage" not in tables:
+                self.db["remote_usage"].create({"provider": str, "requests": int}, pk="provider")
             if "run" not in tables:
                 self.db["run"].create({"output": str, "input": str, "column": str, "at": str}, pk="output")
             if "resolution" not in self.db.table_names():
@@ -167,6 +172,45 @@ class Cache:
             found |= {r[0] for r in self.db.execute(
                 f"SELECT key FROM queue WHERE key IN ({','.join('?' * len(batch))})", batch)}
         return found
+
+    # -- remote answers -------------------------------------------------------
+    def remote_answers(self, provider: str, keys: Iterable[str]):
+        """Cached answers of ``provider`` for ``keys`` (results, no-results and permanent errors)."""
+        from .remote import answer_from_json
+
+        keys = list(keys)
+        out = {}
+        for i in range(0, len(keys), 900):
+            batch = keys[i:i + 900]
+            for key, status, answer in self.db.execute(
+                    f"SELECT key, status, answer FROM remote_answer WHERE provider = ? AND key IN "
+                    f"({','.join('?' * len(batch))})", [provider, *batch]):
+                out[key] = answer_from_json(status, answer)
+        return out
+
+    def put_remote_answer(self, provider: str, key: str, answer, requests: int) -> None:
+        """One answer and the requests it cost, in one transaction (an interrupted run keeps it)."""
+        from .remote import answer_to_json
+
+        now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+        with self.db.conn:
+            self.db.conn.execute(
+                "INSERT OR REPLACE INTO remote_answer (provider, key, status, answer, asked_at) VALUES (?,?,?,?,?)",
+                (provider, key, answer.status, answer_to_json(answer), now))
+            self._add_usage(provider, requests)
+
+    def add_remote_used(self, provider: str, requests: int) -> None:
+        if requests:
+            with self.db.conn:
+                self._add_usage(provider, requests)
+
+    def _add_usage(self, provider: str, requests: int) -> None:
+        self.db.conn.execute("INSERT INTO remote_usage (provider, requests) VALUES (?, ?) ON CONFLICT(provider) "
+                             "DO UPDATE SET requests = requests + excluded.requests", (provider, requests))
+
+    def remote_used(self, provider: str) -> int:
+        row = self.db.execute("SELECT requests FROM remote_usage WHERE provider = ?", (provider,)).fetchone()
+        return int(row[0]) if row else 0
 
     def record_run(self, output: str, input: str, column: str) -> None:
         now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())

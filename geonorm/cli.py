@@ -100,16 +100,35 @@ def clean(
     bad_lines: Annotated[Optional[Path], typer.Option(
         "--bad-lines", help="Write rows with the wrong number of fields here and go on.")] = None,
     report: Annotated[Optional[Path], typer.Option("--report", help="Write the summary as JSON here.")] = None,
+    remote: Annotated[Optional[str], typer.Option(
+        "--remote", help="Send the doubtful rest to a remote geocoder: a TOML adapter file (opt-in).")] = None,
+    budget: Annotated[Optional[int], typer.Option("--budget", min=0, help="Most requests in this run.")] = None,
+    budget_total: Annotated[Optional[int], typer.Option(
+        "--budget-total", min=0, help="Most requests across runs (counted in the cache).")] = None,
+    refresh: Annotated[bool, typer.Option("--refresh", help="Ask the remote service again.")] = False,
+    dry_run: Annotated[bool, typer.Option(
+        "--dry-run", help="With --remote: show what would be sent; send and write nothing.")] = False,
     quiet: QuietOpt = False,
 ) -> None:
     """Append geo columns to every row of a table, in input order."""
     from .batch import clean_file
     from .cache import Cache
 
+    if (budget is not None or budget_total is not None or refresh or dry_run) and remote is None:
+        raise GeonormError("--budget, --budget-total, --refresh and --dry-run only apply with --remote",
+                           hint="add --remote ADAPTER.toml, or drop those options")
     summary = clean_file(input, column, output, cache=Cache(cache), accept=accept, prefix=prefix,
                          encoding=encoding, separator=separator, format=format, workers=workers,
                          bad_lines=bad_lines, report=report, show_progress=not quiet and sys.stderr.isatty(),
-                         progress=_say(quiet))
+                         progress=_say(quiet), remote=remote, budget=budget, budget_total=budget_total,
+                         refresh=refresh, dry_run=dry_run)
+    if dry_run:
+        r = summary.remote
+        typer.echo(f"would send {r['planned']:,} request(s) to {r['provider']} ({r['eligible']:,} doubtful strings, "
+                   f"{r['already_answered']:,} answered before, {r['over_budget']:,} over the budget); first:", err=True)
+        for item in r["top_planned"]:
+            typer.echo(f"  {item['rows']:>7,}  {item['text']}", err=True)
+        return
     if not quiet:
         _print_summary(summary)
 
@@ -121,6 +140,14 @@ def _print_summary(summary) -> None:
                f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}", err=True)
     if summary.bad_lines:
         typer.echo(f"{summary.bad_lines:,} row(s) with the wrong number of fields were set aside", err=True)
+    r = summary.remote
+    if r:
+        typer.echo(f"remote {r['provider']}: {r['requests']:,} request(s) for {r['answered']:,} new answer(s) "
+                   f"({r['with_results']:,} with results, {r['no_result']:,} without, {r['errors']:,} errors, "
+                   f"{r['retries']:,} retries); {r['already_answered']:,} answered before; "
+                   f"{r['strings_changed']:,} string(s) changed", err=True)
+        for message in r["messages"]:
+            typer.echo(f"remote {message}", err=True)
     if summary.output and summary.output != "-":
         typer.echo(f"wrote {summary.output}", err=True)
 

@@ -41,6 +41,9 @@ class Reason(str, Enum):
     FILE_PRIOR = "file_prior"
     NO_MATCH = "no_match"
     REVIEWED = "reviewed"
+    REMOTE_AGREES = "remote_agrees"
+    REMOTE_DIFFERS = "remote_differs"
+    REMOTE_FOUND = "remote_found"
 
 
 REASON_TEXT: dict[Reason, str] = {
@@ -66,6 +69,9 @@ REASON_TEXT: dict[Reason, str] = {
     Reason.FILE_PRIOR: "an ambiguous name settled by the countries of the rest of the file",
     Reason.NO_MATCH: "nothing in the text matched the place index",
     Reason.REVIEWED: "a person's decision, applied from the review queue (wins over every stage)",
+    Reason.REMOTE_AGREES: "the remote service named after the colon agrees with the offline guess",
+    Reason.REMOTE_DIFFERS: "the remote service named after the colon disagrees with the offline guess: review",
+    Reason.REMOTE_FOUND: "the remote service named after the colon found a place the offline cascade did not",
 }
 
 
@@ -97,6 +103,12 @@ class Resolution:
     candidates: list[Candidate] = field(default_factory=list)
     # Per-country evidence, kept so a file-level prior can re-rank later.
     evidence: dict[str, float] = field(default_factory=dict)
+    source: str = ""  # the remote service that contributed, if one did
+
+    @property
+    def reason_text(self) -> str:
+        """The reason as written in files: ``remote_agrees:team-geocoder`` when a service helped."""
+        return f"{self.reason.value}:{self.source}" if self.source else self.reason.value
 
     def to_dict(self) -> dict[str, Any]:
         d = asdict(self)
