@@ -314,6 +314,56 @@ def score(
         out.print(f"no threshold reaches precision {rep.target_precision:g} on this sample", markup=False)
 
 
+@app.command()
+@handle_errors
+def tally(
+    cleaned: Annotated[Path, typer.Argument(help="A file written by geonorm clean.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Where to write the per-country CSV (+ .json sidecar).")],
+    by: Annotated[Optional[str], typer.Option("--by", help="Also count per group of this column.")] = None,
+    split: Annotated[Optional[str], typer.Option("--split", help="Separator of several groups in one cell.")] = None,
+    population: Annotated[Optional[Path], typer.Option(
+        "--population", help="Population table: CSV by ISO code or name, or a World Bank download.")] = None,
+    year: Annotated[Optional[int], typer.Option("--year", help="Year of the population table to use.")] = None,
+    include_review: Annotated[bool, typer.Option(
+        "--include-review", help="Count review rows with a single country guess too.")] = False,
+    min_count: Annotated[int, typer.Option("--min-count", min=1, help="Leave out countries with fewer rows.")] = 1,
+    prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the geo columns.")] = "geo_",
+) -> None:
+    """Per-country counts, rates per million with intervals, shrunk rates, location quotients."""
+    from .tally import tally_file, write_tally
+
+    if split is not None and by is None:
+        raise GeonormError("--split only applies with --by", hint="add --by COLUMN, or drop --split")
+    result = tally_file(cleaned, by=by, split=split, population=population, year=year,
+                        include_review=include_review, min_count=min_count, prefix=prefix)
+    sidecar = write_tally(result, out, by=by is not None)
+    f = result.funnel
+    typer.echo(f"{f['rows']:,} rows, {f['rows_with_text']:,} with text, {f['matched']:,} matched, "
+               f"{f['review']:,} review, {f['unmatched']:,} unmatched, {f['not_a_place']:,} not a place; "
+               f"{f['located']:,} located (disclosure {result.sidecar['disclosure_share']:.1%})", err=True)
+    missing = result.sidecar["countries_without_population"]
+    if missing:
+        typer.echo(f"no population for: {', '.join(missing)} (rates left empty)", err=True)
+    typer.echo(f"wrote {out} and {sidecar}", err=True)
+
+
+@app.command("map")
+@handle_errors
+def map_command(
+    table: Annotated[Path, typer.Argument(help="A CSV written by geonorm tally.")],
+    value: Annotated[str, typer.Option("--value", help="Column to map, e.g. shrunk_per_million.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="map.svg, map.html or map.png.")],
+    title: Annotated[Optional[str], typer.Option("--title", help="Title above the map.")] = None,
+    unit: Annotated[Optional[str], typer.Option("--unit", help="Unit shown in the legend.")] = None,
+    group: Annotated[Optional[str], typer.Option("--group", help="With a --by tally: the group to map.")] = None,
+) -> None:
+    """Draw an offline world choropleth of one column of a tally."""
+    from .mapping import write_map
+
+    write_map(table, value, out, title=title, unit=unit, group=group)
+    typer.echo(f"wrote {out}", err=True)
+
+
 @gazetteer_app.command("build")
 @handle_errors
 def gazetteer_build(

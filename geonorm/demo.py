@@ -1,9 +1,10 @@
-"""The demo: clean the invented member list of a backyard weather-station network."""
+"""The demo: the whole path on the invented member list of a backyard weather-station network.
+
+clean → review queue → per-country tally (and by station kind) → map.
+"""
 
 from __future__ import annotations
 
-import csv
-from collections import Counter
 from collections.abc import Callable
 from importlib import resources
 from pathlib import Path
@@ -11,7 +12,9 @@ from pathlib import Path
 from .batch import clean_file
 from .cache import Cache
 from .errors import InputError
+from .mapping import write_map
 from .review import export_queue
+from .tally import tally_file, write_tally
 
 __all__ = ["demo_file", "run_demo"]
 
@@ -36,10 +39,18 @@ def run_demo(out_dir: Path, progress: Callable[[str], None] | None = None) -> di
     summary = clean_file(demo_file(), "location", cleaned, cache=cache, progress=progress)
     queue = out_dir / "review_queue.csv"
     queued = export_queue(cleaned, queue, column="location", top=200, cache=cache)
-    tally: Counter[str] = Counter()
-    with open(cleaned, encoding="utf-8", newline="") as fh:
-        for row in csv.DictReader(fh):
-            if row["geo_status"] == "matched":
-                tally[row["geo_country"]] += 1
-    return {"summary": summary, "top_countries": tally.most_common(10), "queued": queued,
-            "files": {"cleaned file": cleaned, "review queue (top 200)": queue, "cache": out_dir / "cache.sqlite"}}
+    countries = tally_file(cleaned)
+    per_country = out_dir / "countries.csv"
+    write_tally(countries, per_country, by=False)
+    by_kind = tally_file(cleaned, by="station_kind")
+    per_kind = out_dir / "countries_by_station_kind.csv"
+    write_tally(by_kind, per_kind, by=True)
+    map_svg = write_map(per_country, "shrunk_per_million", out_dir / "members_per_million.svg",
+                        title="Backyard Weather Network members per million people (shrunk)")
+    map_html = write_map(per_country, "shrunk_per_million", out_dir / "members_per_million.html",
+                         title="Backyard Weather Network members per million people (shrunk)")
+    top = [(r["country"], r["count"]) for r in countries.rows[:10]]
+    return {"summary": summary, "top_countries": top, "queued": queued, "tally": countries,
+            "files": {"cleaned file": cleaned, "review queue (top 200)": queue, "per-country figures": per_country,
+                      "per country and station kind": per_kind, "map (SVG)": map_svg, "map (HTML)": map_html,
+                      "cache": out_dir / "cache.sqlite"}}
