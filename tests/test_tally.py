@@ -1,0 +1,217 @@
+"""Per-country figures and the map, checked against external references and hand-worked examples."""
+
+from __future__ import annotations
+
+import csv
+import json
+import random
+import xml.etree.ElementTree as ET
+
+import pycountry
+import pytest
+from scipy.stats import chi2
+from typer.testing import CliRunner
+
+from geonorm.cli import app
+from geonorm.mapping import NO_DATA, classes, render_svg
+from geonorm.population import bundled_population, read_population
+from geonorm.stats import eb_gamma_prior, garwood, location_quotient, shrunk_rates
+from geonorm.tally import tally_file
+
+runner = CliRunner()
+
+
+@pytest.mark.parametrize("k", [0, 1, 2, 3, 5, 10, 20, 50, 100, 1000, 25_000])
+def test_garwood_matches_scipy_chi2(k):
+    # Source: scipy.stats.chi2 quantiles; Garwood (1936): [χ²(0.025; 2k)/2, χ²(0.975; 2k+2)/2].
+    low, high = garwood(k)
+    assert low == pytest.approx(0.0 if k == 0 else chi2.ppf(0.025, 2 * k) / 2, rel=1e-8, abs=1e-10)
+    assert high == pytest.approx(chi2.ppf(0.975, 2 * k + 2) / 2, rel=1e-8)
+
+
+def test_garwood_against_a_published_table():
+    # Exact 95% limits for a Poisson count as tabulated in epidemiology texts (e.g. the
+    # table of exact Poisson confidence limits after Garwood 1936) — values from memory,
+    # to the three decimals usually printed.
+    table = {0: (0.000, 3.689), 1: (0.0253, 5.572), 2: (0.242, 7.225), 3: (0.619, 8.767), 5: (1.623, 11.668),
+             10: (4.795, 18.390)}
+    for k, (lo, hi) in table.items():
+        got = garwood(k)
+        assert got[0] == pytest.approx(lo, abs=6e-4) and got[1] == pytest.approx(hi, abs=6e-4)
+
+
+def _cleaned(path, rows):
+    geo = ["geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon", "geo_confidence", "geo_reason",
+           "geo_status"]
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["id", "kind", *geo])
+        for i, (cc, status, kind) in enumerate(rows):
+            reason = {"matched": "city", "review": "ambiguous", "unmatched": "no_match",
+                      "not_a_place": "empty"}[status]
+            w.writerow([i, kind, cc, "", "", "", "", "0.9", reason, status])
+    return path
+
+
+def _population(path, table):
+    with open(path, "w", encoding="utf-8", newline="") as fh:
+        w = csv.writer(fh, lineterminator="\n")
+        w.writerow(["iso3", "population"])
+        w.writerows(table)
+    return path
+
+
+def test_rates_adjustment_and_lq_on_a_worked_example(tmp_path):
+    # 20 rows: 8 matched in FR, 4 matched in DE, 3 review (DE guess), 2 unmatched, 3 not a place.
+    # Groups (kind): FR has 6 "a" and 2 "b"; DE has 1 "a" and 3 "b".
+    # Populations: FRA 2,000,000, DEU 4,000,000.
+    # Located rows = 12; disclosure d = 12 / 20 = 0.6.
+    # FR: per million = 8 / 2e6 × 1e6 = 4.0; adjusted = 8 / (2e6 × 0.6) × 1e6 = 6.6667; share = 8/12.
+    # DE: per million = 4 / 4e6 × 1e6 = 1.0; adjusted = 4 / (4e6 × 0.6) × 1e6 = 1.6667.
+    # LQ(FR, a) = (6/8) / (7/12) = 0.75 / 0.58333 = 1.2857; LQ(DE, b) = (3/4) / (5/12) = 1.8.
+    # Interval for LQ(DE, b): sqrt(1/3 − 1/4 + 1/5 − 1/12) = sqrt(0.2) = 0.44721;
+    # exp(1.96 × 0.44721) = 2.4025, so the interval is 1.8 / 2.4025 … 1.8 × 2.4025 = (0.7492, 4.3246).
+    rows = ([("FR", "matched", "a")] * 6 + [("FR", "matched", "b")] * 2 + [("DE", "matched", "a")] +
+            [("DE", "matched", "b")] * 3 + [("DE", "review", "b")] * 3 + [("", "unmatched", "a")] * 2 +
+            [("", "not_a_place", "")] * 3)
+    cleaned = _cleaned(tmp_path / "clean.csv", rows)
+    pop = _population(tmp_path / "pop.csv", [("FRA", 2_000_000), ("DEU", 4_000_000)])
+    res = tally_file(cleaned, population=pop)
+    assert res.funnel == {"rows": 20, "rows_with_text": 17, "matched": 12, "review": 3, "unmatched": 2,
+                          "not_a_place": 3, "located": 12}
+    fr, de = res.rows
+    assert (fr["country"], fr["iso3"], fr["count"], fr["per_million"], fr["adjusted_per_million"]) == \
+        ("FR", "FRA", 8, 4.0, 6.6667)
+    assert fr["share"] == pytest.approx(8 / 12, abs=1e-6)
+    assert (de["per_million"], de["adjusted_per_million"]) == (1.0, 1.6667)
+    low, high = garwood(8)
+    assert (fr["per_million_low"], fr["per_million_high"]) == (round(low / 2, 4), round(high / 2, 4))
+    by = {(r["country"], r["group"]): r for r in tally_file(cleaned, population=pop, by="kind").rows}
+    assert by[("FR", "a")]["lq"] == 1.2857
+    assert by[("DE", "b")]["lq"] == 1.8
+    assert (by[("DE", "b")]["lq_low"], by[("DE", "b")]["lq_high"]) == pytest.approx((0.7492, 4.3246), abs=1e-4)
+    assert by[("DE", "b")]["lq_flag"] == ""  # the interval includes 1
+    with_review = tally_file(cleaned, population=pop, include_review=True)
+    counts = {r["country"]: r["count"] for r in with_review.rows}
+    assert with_review.funnel["located"] == 15 and counts == {"FR": 8, "DE": 7}  # DE 4 + 3 review
+
+
+def test_lq_flags_a_clear_over_representation():
+    lq, low, high = location_quotient(80, 100, 200, 1000)  # 80% vs 20%: LQ 4
+    assert lq == 4.0 and low > 1
+    assert location_quotient(0, 100, 200, 1000)[1] == 0.0
+
+
+def test_shrinkage_beats_raw_rates_on_simulated_data():
+    # Seeded simulation: 150 countries, true rates ~ Gamma(2, 0.5) per million, populations from
+    # 50 thousand to 300 million (log-uniform); counts ~ Poisson(population × rate).
+    rng = random.Random(20261201)
+    true, pops, counts = [], [], []
+    for _ in range(150):
+        rate = rng.gammavariate(2.0, 0.5)
+        pop = 10 ** rng.uniform(-1.3, 2.5)  # millions
+        lam = rate * pop
+        # Poisson draw by inversion (small λ) or normal approximation (large λ)
+        if lam < 50:
+            k, p, s, u = 0, pow(2.718281828459045, -lam), 0.0, rng.random()
+            s = p
+            while u > s:
+                k += 1
+                p *= lam / k
+                s += p
+        else:
+            k = max(0, round(rng.gauss(lam, lam ** 0.5)))
+        true.append(rate)
+        pops.append(pop)
+        counts.append(k)
+    raw = [c / p for c, p in zip(counts, pops)]
+    shrunk = shrunk_rates(counts, pops)
+    mse = lambda est: sum((e - t) ** 2 for e, t in zip(est, true)) / len(true)  # noqa: E731
+    assert mse(shrunk) < mse(raw)
+    prior = eb_gamma_prior(counts, pops)
+    assert prior.mean == pytest.approx(sum(counts) / sum(pops))
+
+
+def test_bundled_population_covers_iso_codes():
+    # Source: ISO 3166-1 via pycountry; every code in the bundled table is a real country code.
+    table = bundled_population()
+    codes = {c.alpha_2 for c in pycountry.countries} | {"XK"}
+    assert set(table.values) <= codes
+    assert len(table.values) >= 240
+    assert table.get("FR").year == "2019" and "World Bank" in table.get("FR").source
+    filled = [cc for cc, v in table.values.items() if "GeoNames" in v.source]
+    assert filled and all(table.get(cc).year == "" for cc in filled)
+
+
+def test_world_bank_layout(tmp_path):
+    # Invented numbers in the World Bank download layout: metadata lines first, then the header.
+    path = tmp_path / "API_SP.POP.TOTL.csv"
+    path.write_text(
+        '"Data Source","World Development Indicators",\n\n"Last Updated Date","2026-07-01",\n\n'
+        '"Country Name","Country Code","Indicator Name","Indicator Code","2021","2022","2023",\n'
+        '"Aruba","ABW","Population, total","SP.POP.TOTL","100","110","",\n'
+        '"World","WLD","Population, total","SP.POP.TOTL","9000","9100","9200",\n'
+        '"High income","HIC","Population, total","SP.POP.TOTL","1000","1010","1020",\n'
+        '"France","FRA","Population, total","SP.POP.TOTL","600","610","620",\n'
+        '"Kosovo","XKX","Population, total","SP.POP.TOTL","17","18","19",\n', encoding="utf-8")
+    latest = read_population(path)
+    assert {cc: (v.population, v.year) for cc, v in latest.values.items()} == {
+        "AW": (110, "2022"), "FR": (620, "2023"), "XK": (19, "2023")}  # aggregates ignored
+    y2021 = read_population(path, 2021)
+    assert y2021.get("FR").population == 600 and y2021.get("FR").year == "2021"
+    from geonorm.errors import InputError
+
+    with pytest.raises(InputError, match="no column for year 1999"):
+        read_population(path, 1999)
+
+
+def test_tally_command_lists_countries_without_population(tmp_path):
+    cleaned = _cleaned(tmp_path / "clean.csv", [("FR", "matched", "a")] * 3 + [("NO", "matched", "b")])
+    pop = _population(tmp_path / "pop.csv", [("FRA", 1_000_000)])
+    out = tmp_path / "countries.csv"
+    r = runner.invoke(app, ["tally", str(cleaned), "--out", str(out), "--population", str(pop)])
+    assert r.exit_code == 0, r.output
+    assert "no population for: NO (rates left empty)" in r.stderr
+    rows = list(csv.DictReader(open(out, encoding="utf-8")))
+    assert list(rows[0])[:15] == ["country", "iso3", "name", "count", "count_low", "count_high", "share",
+                                 "population", "population_year", "population_source", "per_million",
+                                 "per_million_low", "per_million_high", "adjusted_per_million",
+                                 "shrunk_per_million"]
+    assert rows[1]["country"] == "NO" and rows[1]["per_million"] == ""
+    side = json.loads(out.with_suffix(".json").read_text())
+    assert side["countries_without_population"] == ["NO"] and "Garwood" in side["method"]["interval"]
+    by = runner.invoke(app, ["tally", str(cleaned), "--out", str(tmp_path / "by.csv"), "--by", "kind"])
+    assert by.exit_code == 0, by.output
+    assert {"group", "lq", "lq_low", "lq_high"} <= set(next(csv.DictReader(open(tmp_path / "by.csv"))))
+    bad = runner.invoke(app, ["tally", str(cleaned), "--out", str(out), "--by", "nope"])
+    assert bad.exit_code == 1 and bad.stderr.startswith("Error: column 'nope' is not in")
+
+
+def test_map_fills_classes_and_marks_no_data():
+    values = {"FR": 1.0, "DE": 2.0, "US": 3.0, "BR": 4.0, "IN": 5.0, "JP": 6.0}
+    svg = render_svg(values, title="Members per million", unit="per million people")
+    root = ET.fromstring(svg)
+    ns = "{http://www.w3.org/2000/svg}"
+    fills = {g.get("class").split()[1].upper(): g.get("fill") for g in root.iter(f"{ns}g")
+             if (g.get("class") or "").startswith("country ")}
+    cls = classes(list(values.values()))
+    for cc, v in values.items():
+        expected = next(c.colour for c in cls if v <= c.high)
+        assert fills[cc] == expected, cc
+    assert fills["FR"] != fills["JP"]
+    assert fills["AU"] == NO_DATA  # no value: drawn as no data
+    texts = [t.text for t in root.iter(f"{ns}text")]
+    assert "Members per million" in texts and "no data" in texts and "per million people" in texts
+
+
+def test_map_command_writes_self_contained_html(tmp_path):
+    table = tmp_path / "countries.csv"
+    table.write_text("country,name,shrunk_per_million\nFR,France,4.5\nDE,Germany,2.0\nNO,Norway,\n")
+    out = tmp_path / "map.html"
+    r = runner.invoke(app, ["map", str(table), "--value", "shrunk_per_million", "--out", str(out)])
+    assert r.exit_code == 0, r.output
+    page = out.read_text()
+    assert page.startswith("<!DOCTYPE html>") and "<svg" in page
+    assert "http://" not in page.replace("http://www.w3.org/2000/svg", "")  # nothing fetched at render time
+    bad = runner.invoke(app, ["map", str(table), "--value", "rate", "--out", str(out)])
+    assert bad.exit_code == 1 and "column 'rate' is not in" in bad.stderr
