@@ -69,7 +69,7 @@ def test_budget_is_spent_in_impact_order_and_never_twice(tmp_path):
     behaviour = Behaviour(answers={"zorbaville": [hit("FR", 45.1, 4.8, "Zorbaville")],
                                    "quellmoor": [hit("DE", 52.0, 9.0)]})
     with FixtureServer(behaviour) as server:
-        adapter = adapter_file(tmp_path / "a.toml", server.url)
+        adapter = adapter_file(tmp_path / "a.toml", server.url, concurrency=1)  # one at a time: order is visible
         src = _table(tmp_path / "in.csv", UNKNOWN)
         dry = _clean(tmp_path, src, adapter, "--budget", 2, "--dry-run")
         assert dry.exit_code == 0, dry.output
