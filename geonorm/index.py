@@ -110,6 +110,17 @@ def _good_alt_name(name: str) -> bool:
     return True
 
 
+# Words that name a part of many countries ("South", "Central", "Capital"): as the
+# name of a subdivision they would match everywhere, so they are not indexed for
+# subdivisions (common practice).
+GENERIC_PLACE_WORDS = frozenset(
+    "north south east west central centre center capital northern southern eastern western middle upper lower "
+    "coast coastal island islands lake lakes river valley mountain mountains border northeast northwest "
+    "southeast southwest north east north west south east south west the south the north the east the west "
+    "interior highlands lowlands".split(" ")) | {"north east", "north west", "south east", "south west",
+                                                  "the south", "the north", "the east", "the west"}
+
+
 def _name_variants(name: str) -> list[str]:
     """ISO 3166-2 names carry variants: "Catalunya [Cataluña]", "A;B", "X, Région de"."""
     out = []
@@ -295,6 +306,9 @@ class _Builder:
     def add_name(self, text: str, pid: int, origin: str, fuzzy: bool = False) -> None:
         key = fold(text)
         if not key:
+            return
+        if key in GENERIC_PLACE_WORDS and (origin in ("translation", "lower_sub") or
+                                           self.places[pid - 1][1] == "subdivision"):
             return
         self.names.add((key, pid, ORIGIN_ID[origin]))
         if fuzzy and len(key) >= 5 and key.isascii():

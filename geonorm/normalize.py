@@ -143,6 +143,7 @@ class Part:
     tokens: tuple[Token, ...]
     full_key: str = ""     # the folded part before noise removal ("bay area")
     street: bool = False   # a street line of an address: not matched against places
+    lead_key: str = ""     # the folded part with only its leading noise removed ("the bay area" → "bay area")
 
     @property
     def key(self) -> str:
@@ -177,6 +178,10 @@ class NoisePhrases:
         self._prefix = re.compile(rf"^(?:(?:{alternation(prefix)})\s+)+(?=\S)")
         self._suffix = re.compile(rf"(?<=\S)(?:\s+(?:{alternation(suffix)}))+$")
         self._anywhere = re.compile(rf"(?:^|\s)(?:{alternation(anywhere)})(?=\s|$)")
+
+    def strip_prefix(self, key: str) -> str:
+        """Only the leading noise ("the Bay Area" → "Bay Area", whose last word is also noise)."""
+        return self._prefix.sub("", key).strip()
 
     def strip(self, key: str) -> str:
         """Remove noise around a part; a part that is nothing but noise stays as it is
@@ -280,7 +285,7 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
                 continue
             tokens.append(Token(word, orig_by_key.get(word, word)))
         if tokens:
-            parts.append(Part(tuple(tokens), folded, street))
+            parts.append(Part(tuple(tokens), folded, street, noise.strip_prefix(folded)))
     has_letters = any(c.isalpha() for c in key) or bool(flags)
     return Query(raw, key, fold(text), tuple(parts), tuple(flags), tuple(postcodes), streetlike, had_noise,
                  has_letters)

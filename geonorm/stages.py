@@ -43,7 +43,7 @@ LOWER_WORD_CODES = frozenset("in at to be is it me my no so us am an as by do go
 _CJK = re.compile(r"[\u0e00-\u0eff\u1000-\u109f\u1780-\u17ff\u3040-\u30ff\u3400-\u4dbf\u4e00-\u9fff"
                   r"\uac00-\ud7af]")
 _IPV4 = re.compile(r"^\d{1,3}(?:[ .]\d{1,3}){3}$")
-_URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|@")
+_URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|[\w.+-]+@[\w-]+\.\w")
 _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
 
 
@@ -126,7 +126,7 @@ class Segmenter:
         words = [t.key for t in part.tokens]
         # The part as typed, before noise removal, may itself be a name ("Bay Area"),
         # and so may a long part ("Các Tiểu Vương quốc Ả Rập Thống nhất").
-        for key in (part.full_key, part.key):
+        for key in dict.fromkeys((part.full_key, part.lead_key, part.key)):
             if len(key.split()) > 1:
                 hits = self._lookup(key)
                 if hits:
