@@ -22,7 +22,15 @@ from pathlib import Path
 
 from .cache import Cache
 from .errors import InputError
-from .formats import count_values, find_ragged, open_source, output_format, read_header, set_aside, write_output
+from .formats import (
+    count_values,
+    find_ragged,
+    open_source,
+    output_format,
+    read_header,
+    set_aside,
+    write_output,
+)
 from .resolution import Resolution, Status
 from .resolver import DEFAULT_ACCEPT, Resolver, apply_accept
 
@@ -92,11 +100,11 @@ def _resolve_misses(resolver: Resolver, misses: list[str], workers: int, cache: 
         for chunk in chunks:
             take([(k, resolver.resolve(k)) for k in chunk])
         return fresh
-    if "fork" in mp.get_all_start_methods():
-        # Forked workers share the loaded index (read-only memory and the OS page cache).
-        ctx, shared = mp.get_context("fork"), resolver
-    else:  # pragma: no cover - platforms without fork
-        ctx, shared = mp.get_context("spawn"), None
+    # Forked workers share the loaded index (read-only memory and the OS page cache);
+    # where there is no fork, spawned workers open the index file again.
+    method = "fork" if "fork" in mp.get_all_start_methods() else "spawn"
+    ctx = mp.get_context(method)
+    shared = resolver if method == "fork" else None
     with ctx.Pool(workers, initializer=_worker_init,
                   initargs=(shared, str(resolver.index.path), resolver.accept)) as pool:
         for pairs in pool.imap(_worker_resolve, chunks):
@@ -120,7 +128,7 @@ def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None
     counts: Counter[str] = Counter()
     pairs = values.items() if isinstance(values, dict) else ((v, 1) for v in values)
     for v, n in pairs:
-        counts[v if keyed else resolver.key(v)] += n
+        counts[str(v) if keyed else resolver.key(v)] += n
     version = resolver.version
     found = cache.get_many(counts, version) if cache else {}
     misses = sorted(k for k in counts if k not in found)
@@ -148,7 +156,12 @@ class _Progress:
         if enabled:
             from rich.console import Console
             from rich.progress import (
-                BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn,
+                BarColumn,
+                MofNCompleteColumn,
+                Progress,
+                TextColumn,
+                TimeElapsedColumn,
+                TimeRemainingColumn,
             )
 
             self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
@@ -279,7 +292,7 @@ def _ask_remote(remote, results: dict[str, Resolution], key_counts: Counter[str]
     from .remote import load_adapter, merge, run_remote
     from .resolution import Reason
 
-    adapter = load_adapter(remote) if isinstance(remote, (str, Path)) else remote
+    adapter = load_adapter(str(remote)) if isinstance(remote, (str, Path)) else remote
     decided = set(cache.overrides(key_counts))
     # Never a not_a_place, never a confident match; nor a continent or a string already
     # known to name places in several countries: no service can give those one country.

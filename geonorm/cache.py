@@ -49,25 +49,25 @@ class Cache:
             if self.db.execute("PRAGMA user_version").fetchone()[0] != CACHE_SCHEMA:
                 with conn:
                     if "resolution" in self.db.table_names():
-                        self.db["resolution"].drop()
+                        self.db.table("resolution").drop()
                     conn.execute(f"PRAGMA user_version = {CACHE_SCHEMA}")
             tables = self.db.table_names()
             if "override" not in tables:
-                self.db["override"].create(
+                self.db.table("override").create(
                     {"key": str, "text": str, "country": str, "subdivision": str, "city": str, "lat": float,
                      "lon": float, "geonameid": int, "not_a_place": int, "note": str, "decided_at": str,
                      "source": str}, pk="key")
             if "queue" not in tables:
-                self.db["queue"].create({"key": str, "text": str, "exported_at": str, "file": str}, pk="key")
+                self.db.table("queue").create({"key": str, "text": str, "exported_at": str, "file": str}, pk="key")
             if "remote_answer" not in tables:
-                self.db["remote_answer"].create({"provider": str, "key": str, "status": str, "answer": str,
+                self.db.table("remote_answer").create({"provider": str, "key": str, "status": str, "answer": str,
                                                  "asked_at": str}, pk=("provider", "key"))
             if "remote_usage" not in tables:
-                self.db["remote_usage"].create({"provider": str, "requests": int}, pk="provider")
+                self.db.table("remote_usage").create({"provider": str, "requests": int}, pk="provider")
             if "run" not in tables:
-                self.db["run"].create({"output": str, "input": str, "column": str, "at": str}, pk="output")
+                self.db.table("run").create({"output": str, "input": str, "column": str, "at": str}, pk="output")
             if "resolution" not in self.db.table_names():
-                self.db["resolution"].create(
+                self.db.table("resolution").create(
                     {"key": str, "version": str, "status": str, "reason": str, "country": str,
                      "subdivision": str, "city": str, "lat": float, "lon": float, "geonameid": int,
                      "confidence": float, "score": float, "detail": str, "created": str, "updated": str},
@@ -90,7 +90,7 @@ class Cache:
         if len(keys) > 5000 and len(keys) * 4 >= self.count():
             # Asking for a good part of the table: one sequential scan beats many IN queries.
             wanted = set(keys)
-            batches = [[row for row in self.db.execute(columns, [version]) if row[0] in wanted]]
+            batches: Iterable[list] = [[row for row in self.db.execute(columns, [version]) if row[0] in wanted]]
         else:
             batches = (self.db.execute(f"{columns} AND key IN ({','.join('?' * len(keys[i:i + 900]))})",
                                        [version, *keys[i:i + 900]]).fetchall() for i in range(0, len(keys), 900))
@@ -153,7 +153,7 @@ class Cache:
     def put_overrides(self, decisions: list[dict]) -> None:
         """Store decisions in one transaction."""
         with self.db.conn:
-            self.db["override"].upsert_all(decisions, pk="key")
+            self.db.table("override").upsert_all(decisions, pk="key")
 
     def delete_override(self, key: str) -> bool:
         with self.db.conn:
@@ -162,7 +162,7 @@ class Cache:
 
     def put_queue(self, entries: list[dict]) -> None:
         with self.db.conn:
-            self.db["queue"].upsert_all(entries, pk="key")
+            self.db.table("queue").upsert_all(entries, pk="key")
 
     def queued(self, keys: Iterable[str]) -> set[str]:
         keys = list(keys)
@@ -215,14 +215,14 @@ class Cache:
     def record_run(self, output: str, input: str, column: str) -> None:
         now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
         with self.db.conn:
-            self.db["run"].upsert({"output": output, "input": input, "column": column, "at": now}, pk="output")
+            self.db.table("run").upsert({"output": output, "input": input, "column": column, "at": now}, pk="output")
 
     def run_column(self, output: str) -> str | None:
         row = self.db.execute("SELECT column FROM run WHERE output = ?", (output,)).fetchone()
         return row[0] if row else None
 
     def count(self) -> int:
-        return self.db["resolution"].count
+        return self.db.table("resolution").count
 
     def close(self) -> None:
         self.db.conn.close()

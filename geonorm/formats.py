@@ -408,7 +408,7 @@ def _write_polars(source: Source, column: str, mapping: dict, geo_names: list[st
             joined.sink_ndjson(tmp, maintain_order=True)
         else:
             joined.sink_csv(tmp, separator="\t" if out_fmt == "tsv" else ",", maintain_order=True)
-    except (pl.exceptions.PolarsError,) as exc:
+    except pl.exceptions.PolarsError as exc:
         raise _polars_error(source, exc) from exc
 
 

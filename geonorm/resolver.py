@@ -136,7 +136,9 @@ class Resolver:
         self.index = index or load_index(progress=progress)
         self.accept = accept
         self.calibration = calibration or load_calibration()
-        prefix, suffix, anywhere = [], [], []
+        prefix: list[str] = []
+        suffix: list[str] = []
+        anywhere: list[str] = []
         for phrase, position in self.index.noise:
             {"prefix": prefix, "suffix": suffix}.get(position, anywhere).append(phrase)
         self.noise = NoisePhrases(prefix, suffix, anywhere)
@@ -237,8 +239,8 @@ class Resolver:
         total = sum(tally.values())
         if total < min_rows:
             return {}
-        k = max(1, len(tally))
-        return {c: (n + 1) / (total + k) for c, n in tally.items()}
+        n_countries = max(1, len(tally))
+        return {c: (n + 1) / (total + n_countries) for c, n in tally.items()}
 
     # -- stages -------------------------------------------------------------
     def mentions(self, query: Query) -> list[Mention]:
@@ -246,7 +248,7 @@ class Resolver:
         found: list[Mention] = []
         found += self.flags.resolve(query)
         found += self.postcodes.resolve(query)
-        by_span: dict[tuple[int, int], Mention] = {}
+        by_span: dict[tuple[int, int, str], Mention] = {}
         for stage in self.name_stages:
             for m in stage.resolve(query, spans):
                 key = (m.part, m.start, m.text)

@@ -189,7 +189,7 @@ class NotAPlaceStage:
         for k in keys - {""}:
             kind = self.table.get(k)
             if kind:
-                return {"empty_like": "placeholder"}.get(kind, kind)
+                return "placeholder" if kind == "empty_like" else kind
         bare = query.folded.replace(" ", "")
         if _IPV4.match(query.folded) or _URL.search(query.key):
             return "junk"

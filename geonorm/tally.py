@@ -65,7 +65,7 @@ def _round(x: float | None, digits: int = 4) -> float | str:
 
 def _rates(count: int, pv, d: float, shrunk: float | None) -> dict:
     low, high = garwood(count)
-    row = {"count": count, "count_low": round(low, 3), "count_high": round(high, 3)}
+    row: dict[str, object] = {"count": count, "count_low": round(low, 3), "count_high": round(high, 3)}
     if pv is None:
         row.update(population="", population_year="", population_source="", per_million="", per_million_low="",
                    per_million_high="", adjusted_per_million="", shrunk_per_million="")

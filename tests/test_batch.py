@@ -6,13 +6,12 @@ import csv
 import json
 import os
 import signal
-import sqlite3
 import subprocess
 import sys
-import time
 
 import polars as pl
 import pytest
+from conftest import wait_for_rows
 from typer.testing import CliRunner
 
 from geonorm.cli import app
@@ -211,18 +210,7 @@ def test_kill_and_resume_gives_identical_output(tmp_path):
     subprocess.run([*cmd, "--out", str(reference), "--cache", str(tmp_path / "ref.sqlite")], check=True)
     cache, out = tmp_path / "killed.sqlite", tmp_path / "resumed.csv"
     proc = subprocess.Popen([*cmd, "--out", str(out), "--cache", str(cache)])
-    deadline = time.time() + 120
-    committed = 0
-    while time.time() < deadline and proc.poll() is None:
-        time.sleep(0.05)
-        if cache.exists():
-            try:
-                with sqlite3.connect(cache, timeout=1) as db:
-                    committed = db.execute("SELECT count(*) FROM resolution").fetchone()[0]
-            except sqlite3.DatabaseError:
-                continue
-            if committed >= 2000:
-                break
+    committed = wait_for_rows(proc, cache, "resolution", 2000)
     assert proc.poll() is None, "the run finished before it could be interrupted"
     os.kill(proc.pid, signal.SIGKILL)
     proc.wait()

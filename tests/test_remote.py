@@ -12,6 +12,7 @@ import sys
 import time
 
 import pytest
+from conftest import wait_for_rows
 from fixture_server import Behaviour, FixtureServer, adapter_file, hit
 from typer.testing import CliRunner
 
@@ -232,16 +233,7 @@ def test_kill_mid_run_then_rerun_sends_nothing_twice(tmp_path):
                str(tmp_path / "out.csv"), "--cache", str(cache), "--remote", str(adapter), "--quiet",
                "--workers", "1"]
         proc = subprocess.Popen(cmd)
-        deadline = time.time() + 120
-        answered = 0
-        while time.time() < deadline and proc.poll() is None and answered < 10:
-            time.sleep(0.05)
-            if cache.exists():
-                try:
-                    with sqlite3.connect(cache, timeout=1) as db:
-                        answered = db.execute("SELECT count(*) FROM remote_answer").fetchone()[0]
-                except sqlite3.DatabaseError:
-                    pass
+        wait_for_rows(proc, cache, "remote_answer", 10)
         assert proc.poll() is None, "the run ended before it could be interrupted"
         os.kill(proc.pid, signal.SIGKILL)
         proc.wait()
