@@ -65,6 +65,8 @@ SOVEREIGN = {
     **dict.fromkeys(["CX", "CC", "NF", "HM"], "AU"),
     **dict.fromkeys(["TK", "NU", "CK"], "NZ"),
 }
+# A location is short; a cell longer than this (a pasted document) is read up to here.
+MAX_TEXT = 500
 # How far the file's country mix may lean an ambiguous name: shares are raised
 # to this power (0 = ignore the file, 1 = full Bayes with the file as prior).
 # Kept low because a file's majority says little about one person's town.
@@ -170,7 +172,12 @@ class Resolver:
         return normalize_key(raw)
 
     def resolve(self, raw: object) -> Resolution:
-        """Resolve one string. Never raises on any text."""
+        """Resolve one string. Never raises on any text.
+
+        Only the first ``MAX_TEXT`` characters of a very long cell are read.
+        """
+        if isinstance(raw, str) and len(raw) > MAX_TEXT:
+            raw = raw[:MAX_TEXT]
         query = self.normalize(raw)
         kind = self.not_a_place.resolve(query)
         if kind:

@@ -43,7 +43,8 @@ LOWER_WORD_CODES = frozenset("in at to be is it me my no so us am an as by do go
 _CJK = re.compile(r"[\u0e00-\u0eff\u1000-\u109f\u1780-\u17ff\u3040-\u30ff\u3400-\u4dbf\u4e00-\u9fff"
                   r"\uac00-\ud7af]")
 _IPV4 = re.compile(r"^\d{1,3}(?:[ .]\d{1,3}){3}$")
-_URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|[\w.+-]+@[\w-]+\.\w")
+# Bounded repeats: a megabyte-long cell must not make the search quadratic.
+_URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|[\w.+-]{1,64}@[\w-]{1,64}\.\w")
 _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
 
 
