@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
-from .cache import Cache
 from .errors import CacheError, GeonormError, IndexError_, InputError
 from .index import PlaceIndex, build_index, load_index
 from .normalize import Query, normalize
@@ -13,6 +12,7 @@ from .resolver import DEFAULT_ACCEPT, Resolver
 
 if TYPE_CHECKING:
     from .batch import CleanSummary, clean_file, resolve_series
+    from .cache import Cache
 
 __version__ = "0.1.0"
 
@@ -22,12 +22,14 @@ __all__ = [
     "build_index", "clean_file", "load_index", "normalize", "resolve_series",
 ]
 
-_LAZY = {"CleanSummary", "clean_file", "resolve_series"}  # need polars: imported on first use
+# Imported on first use: polars and sqlite-utils cost a third of a second at start-up,
+# which a single lookup does not need.
+_LAZY = {"CleanSummary": "batch", "clean_file": "batch", "resolve_series": "batch", "Cache": "cache"}
 
 
 def __getattr__(name: str) -> Any:
     if name in _LAZY:
-        from . import batch
+        import importlib
 
-        return getattr(batch, name)
+        return getattr(importlib.import_module(f".{_LAZY[name]}", __name__), name)
     raise AttributeError(f"module 'geonorm' has no attribute {name!r}")
