@@ -26,7 +26,7 @@ import polars as pl
 from .errors import InputError
 
 __all__ = ["Source", "FORMATS", "open_source", "output_format", "read_header", "count_values",
-           "write_output", "find_ragged", "set_aside", "as_text_row"]
+           "write_output", "find_ragged", "set_aside", "as_text_row", "lazy_table", "read_columns"]
 
 FORMATS = ("csv", "tsv", "parquet", "jsonl")
 _EXTENSIONS = {".csv": "csv", ".txt": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet",
@@ -200,6 +200,22 @@ def _scan(source: Source) -> pl.LazyFrame:
         return pl.scan_parquet(source.path)
     return pl.scan_csv(source.path, separator=source.separator, infer_schema=False, encoding="utf8",
                        quote_char='"', raise_if_empty=True)
+
+
+def lazy_table(source: Source) -> pl.LazyFrame:
+    """The whole table, lazily (JSON Lines is read at once: polars infers its types)."""
+    if source.format == "jsonl":
+        return pl.read_ndjson(source.path, infer_schema_length=None).lazy()
+    return _scan(source)
+
+
+def read_columns(source: Source, columns: list[str]) -> pl.DataFrame:
+    """Some columns of a table as text, missing values as empty strings."""
+    try:
+        return lazy_table(source).select(
+            [pl.col(c).cast(pl.String).fill_null("") for c in dict.fromkeys(columns)]).collect()
+    except (pl.exceptions.PolarsError, OSError, UnicodeDecodeError) as exc:
+        raise _polars_error(source, exc) from exc
 
 
 def _polars_error(source: Source, exc: Exception) -> InputError:
@@ -389,10 +405,7 @@ def _mapping_frame(mapping: dict[str | None, list], geo_names: list[str], typed:
 
 def _write_polars(source: Source, column: str, mapping: dict, geo_names: list[str], out_fmt: str,
                   tmp: Path) -> None:
-    if source.format == "jsonl":
-        lf = pl.read_ndjson(source.path, infer_schema_length=None).lazy()
-    else:
-        lf = _scan(source)
+    lf = lazy_table(source)
     table = _mapping_frame(mapping, geo_names, typed=out_fmt in ("parquet", "jsonl")).lazy()
     key = pl.col(column).cast(pl.String)
     if source.format == "jsonl":

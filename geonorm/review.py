@@ -22,7 +22,7 @@ import pycountry
 
 from .cache import Cache
 from .errors import InputError
-from .formats import open_source, read_header
+from .formats import open_source, read_columns, read_header
 from .normalize import fold, normalize_key
 from .resolver import Resolver
 
@@ -72,13 +72,7 @@ def _read_cleaned(path: str | Path, column: str | None, prefix: str, cache: Cach
         if column is None or column not in header:
             raise InputError(f"cannot tell which column of {source.name} holds the location text",
                              hint=f"pass --column, one of: {', '.join(h for h in header if h not in needed)}")
-        from .formats import _scan
-
-        if source.format == "jsonl":
-            frame = pl.read_ndjson(source.path, infer_schema_length=None)
-        else:
-            frame = _scan(source).collect()
-        frame = frame.select([pl.col(c).cast(pl.String) for c in [column, *needed]])
+        frame = read_columns(source, [column, *needed])
         return frame.group_by([column, *needed]).len().rename({column: "__text"}), column
     finally:
         source.cleanup()

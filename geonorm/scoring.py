@@ -15,11 +15,9 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-import polars as pl
-
 from .calibration import expected_calibration_error, reliability
 from .errors import InputError
-from .formats import _scan, open_source, read_header
+from .formats import open_source, read_columns, read_header
 from .resolution import Reason, Resolution, Status
 from .resolver import DEFAULT_ACCEPT, Resolver
 
@@ -111,12 +109,7 @@ def score_file(path: str | Path, column: str, truth: str, *, truth_subdivision: 
             if name is not None and name not in header:
                 raise InputError(f"column {name!r} is not in {source.name}; its columns are: {', '.join(header)}",
                                  hint=f"pass the right name with {what}")
-        cols = [c for c in (column, truth, truth_subdivision) if c]
-        if source.format == "jsonl":
-            frame = pl.read_ndjson(source.path)
-        else:
-            frame = _scan(source).collect()
-        frame = frame.select([pl.col(c).cast(pl.String).fill_null("") for c in dict.fromkeys(cols)])
+        frame = read_columns(source, [c for c in (column, truth, truth_subdivision) if c])
     finally:
         source.cleanup()
     resolver = resolver or Resolver(accept=accept)

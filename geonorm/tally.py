@@ -31,7 +31,7 @@ import polars as pl
 import pycountry
 
 from .errors import InputError
-from .formats import _scan, open_source, read_header
+from .formats import open_source, read_columns, read_header
 from .population import PopulationTable, bundled_population, read_population
 from .stats import eb_gamma_prior, garwood, location_quotient
 
@@ -94,12 +94,7 @@ def tally_file(cleaned: str | Path, *, by: str | None = None, split: str | None 
         if by is not None and by not in header:
             raise InputError(f"column {by!r} is not in {source.name}; its columns are: {', '.join(header)}",
                              hint="pass the grouping column with --by")
-        cols = needed + ([by] if by else [])
-        if source.format == "jsonl":
-            frame = pl.read_ndjson(source.path, infer_schema_length=None)
-        else:
-            frame = _scan(source).collect()
-        frame = frame.select([pl.col(c).cast(pl.String).fill_null("") for c in cols])
+        frame = read_columns(source, needed + ([by] if by else []))
     finally:
         source.cleanup()
     cc_col, st_col, rs_col = needed
