@@ -651,13 +651,6 @@ class PlaceIndex:
             hits.append(NameHit(p, ORIGINS[row[10]]))
         return tuple(hits)
 
-    def has_prefix(self, key: str) -> bool:
-        """True when some name starts with ``key`` + a space (n-gram growth check)."""
-        row = self._db().execute(
-            "SELECT 1 FROM name WHERE key > ? AND key < ? LIMIT 1", (key + " ", key + " \uffff")
-        ).fetchone()
-        return row is not None
-
     @lru_cache(maxsize=4096)  # noqa: B019 - the index lives as long as the process
     def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], list[tuple[int, str]]]:
         """Names typo matching may reach: starting with ``first``, within ``spread`` of ``length``

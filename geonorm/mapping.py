@@ -35,9 +35,6 @@ class MapClass:
     high: float
     colour: str
 
-    def contains(self, v: float) -> bool:
-        return self.low <= v <= self.high
-
 
 def _fmt(v: float) -> str:
     if v == 0:

@@ -117,14 +117,6 @@ class Resolution:
         return d
 
     @classmethod
-    def from_dict(cls, d: dict[str, Any]) -> Resolution:
-        d = dict(d)
-        d["status"] = Status(d["status"])
-        d["reason"] = Reason(d["reason"])
-        d["candidates"] = [Candidate(**c) for c in d.get("candidates", [])]
-        return cls(**d)
-
-    @classmethod
     def from_override(cls, d: dict[str, Any]) -> Resolution:
         """A person's decision as a resolution: it wins over every stage."""
         if d.get("not_a_place"):

@@ -17,7 +17,7 @@ from rapidfuzz import process
 from rapidfuzz.distance import OSA
 
 from .index import NameHit, Place, PlaceIndex
-from .normalize import Part, Query, fold
+from .normalize import Part, Query
 
 __all__ = ["Mention", "Reading", "Segmenter", "NotAPlaceStage", "FlagStage", "PostcodeStage",
            "CountryStage", "SubdivisionStage", "CityStage", "FuzzyStage", "STOPWORDS"]
@@ -397,6 +397,3 @@ class FuzzyStage:
                     out.append(m)
         return out
 
-
-def stopword_only(text: str) -> bool:
-    return all(w in STOPWORDS for w in fold(text).split())
