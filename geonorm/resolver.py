@@ -611,7 +611,7 @@ class Resolver:
         all_readings = [r for _, _, kept in dists for rs in kept for r in rs if r.place.cc == res.country]
         sims = [r.similarity for r in all_readings if r.similarity < 1.0]
         if sims:
-            score *= min(sims) ** 3
+            score *= min(sims) ** 1.5
         # Words nobody explained lower the score.
         explained = {(m.part, m.start) for g, _, _ in dists for m in g.mentions}
         # Within a part that names the place, a stray word is suspicious; a
