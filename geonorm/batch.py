@@ -293,12 +293,12 @@ def _ask_remote(remote, results: dict[str, Resolution], key_counts: Counter[str]
     from .resolution import Reason
 
     adapter = load_adapter(str(remote)) if isinstance(remote, (str, Path)) else remote
-    decided = set(cache.overrides(key_counts))
-    # Never a not_a_place, never a confident match; nor a continent or a string already
-    # known to name places in several countries: no service can give those one country.
+    # Never a not_a_place, never a confident match, never a person's decision; nor a
+    # continent or a string known to name places in several countries: no service can
+    # give those one country.
     wanted = [(k, n) for k, n in key_counts.items()
-              if k and k not in decided and results[k].status in (Status.REVIEW, Status.UNMATCHED)
-              and results[k].reason not in (Reason.WORLD_REGION, Reason.SEVERAL_COUNTRIES)]
+              if k and results[k].status in (Status.REVIEW, Status.UNMATCHED)
+              and results[k].reason not in (Reason.WORLD_REGION, Reason.SEVERAL_COUNTRIES, Reason.REVIEWED)]
     stats = run_remote(adapter, wanted, cache, **options)
     summary.remote = {"provider": stats.provider, "eligible": len(wanted), "already_answered": stats.from_cache,
                       "planned": len(stats.planned), "requests": stats.requests, "answered": stats.answered,
