@@ -140,7 +140,7 @@ def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None
     if cache is not None:  # people's decisions from the review queue win over every stage
         for k, decision in cache.overrides(counts).items():
             results[k] = Resolution.from_override(decision)
-    resolver.apply_file_prior(results, counts)
+    resolver.apply_file_prior(results, counts, accept)
     if summary is not None:
         summary.distinct = len(counts)
         summary.cache_hits = len(found)

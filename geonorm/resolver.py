@@ -211,7 +211,7 @@ class Resolver:
                 cand.subdivision, cand.city, cand.lat, cand.lon, None)
         new.score = max(1e-4, min(0.9999, res.score * p_new / max(p_old, 1e-4)))
         new.confidence = round(self.calibration.apply(new.score, Reason.FILE_PRIOR), 4)
-        return apply_accept(new, self.accept)
+        return new
 
     def resolve_many(self, values: Mapping[str, int] | Iterable[str]) -> dict[str, Resolution]:
         """Resolve distinct strings (optionally with row counts) with a file-level prior.
@@ -223,14 +223,17 @@ class Resolver:
         results = {v: self.resolve(v) for v in counts}
         return self.apply_file_prior(results, counts)
 
-    def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int]) -> dict[str, Resolution]:
-        """Re-rank the ambiguous answers of one file with the file's country prior (in place)."""
+    def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int],
+                         accept: float | None = None) -> dict[str, Resolution]:
+        """Re-rank the ambiguous answers of one file with the file's country prior (in place);
+        re-ranked answers get their status from ``accept`` (default: the resolver's)."""
         prior = self.file_prior(results, counts)
         if prior:
             for k, res in results.items():
                 if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
                         and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE):
-                    results[k] = self.reconsider(res, prior)
+                    results[k] = apply_accept(self.reconsider(res, prior),
+                                              self.accept if accept is None else accept)
         return results
 
     @staticmethod
@@ -612,11 +615,10 @@ class Resolver:
         sims = [r.similarity for r in all_readings if r.similarity < 1.0]
         if sims:
             score *= min(sims) ** 1.5
-        # Words nobody explained lower the score.
-        explained = {(m.part, m.start) for g, _, _ in dists for m in g.mentions}
-        # Within a part that names the place, a stray word is suspicious; a
-        # whole part nobody explained (a street line, an aside) much less so.
-        parts_with = {pi for pi, _ in explained}
+        # Words nobody explained lower the score. Within a part that names the place, a
+        # stray word is suspicious; a whole part nobody explained (a street line, an
+        # aside) much less so.
+        parts_with = {m.part for g, _, _ in dists for m in g.mentions}
         for pi, part in enumerate(query.parts):
             words = [t.key for t in part.tokens if t.key not in STOPWORDS]
             if pi in parts_with:
