@@ -5,26 +5,48 @@ from __future__ import annotations
 from typing import TYPE_CHECKING, Any
 
 from .errors import CacheError, GeonormError, IndexError_, InputError
-from .index import PlaceIndex, build_index, load_index
-from .normalize import Query, normalize
-from .resolution import Candidate, Reason, Resolution, Status
-from .resolver import DEFAULT_ACCEPT, Resolver
+from .resolve.index import PlaceIndex, build_index, load_index
+from .resolve.normalize import Query, normalize
+from .resolve.resolution import Candidate, Reason, Resolution, Status
+from .resolve.resolver import DEFAULT_ACCEPT, Resolver
 
 if TYPE_CHECKING:
-    from .batch import CleanSummary, clean_file, resolve_series
-    from .cache import Cache
+    from .batch.clean import CleanSummary, clean_file, resolve_series
+    from .batch.cache import Cache
 
 __version__ = "0.1.0"
 
 __all__ = [
-    "Cache", "CacheError", "Candidate", "CleanSummary", "DEFAULT_ACCEPT", "GeonormError", "IndexError_",
-    "InputError", "PlaceIndex", "Query", "Reason", "Resolution", "Resolver", "Status", "__version__",
-    "build_index", "clean_file", "load_index", "normalize", "resolve_series",
+    "DEFAULT_ACCEPT",
+    "Cache",
+    "CacheError",
+    "Candidate",
+    "CleanSummary",
+    "GeonormError",
+    "IndexError_",
+    "InputError",
+    "PlaceIndex",
+    "Query",
+    "Reason",
+    "Resolution",
+    "Resolver",
+    "Status",
+    "__version__",
+    "build_index",
+    "clean_file",
+    "load_index",
+    "normalize",
+    "resolve_series",
 ]
 
 # Imported on first use: polars and sqlite-utils cost a third of a second at start-up,
 # which a single lookup does not need.
-_LAZY = {"CleanSummary": "batch", "clean_file": "batch", "resolve_series": "batch", "Cache": "cache"}
+_LAZY = {
+    "CleanSummary": "batch.clean",
+    "clean_file": "batch.clean",
+    "resolve_series": "batch.clean",
+    "Cache": "batch.cache",
+}
 
 
 def __getattr__(name: str) -> Any:

@@ -7,27 +7,41 @@ import functools
 import json
 import sys
 from pathlib import Path
-from typing import Annotated, Optional
+from typing import Annotated
 
 import typer
 from rich.console import Console
 from rich.table import Table
 
 from .errors import GeonormError
-from .resolver import DEFAULT_ACCEPT
+from .resolve.resolver import DEFAULT_ACCEPT
 
-app = typer.Typer(help="Resolve free-text location fields to ISO 3166 places, offline.",
-                  no_args_is_help=True, add_completion=False, pretty_exceptions_enable=False)
+app = typer.Typer(
+    help="Resolve free-text location fields to ISO 3166 places, offline.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
 gazetteer_app = typer.Typer(help="Build or inspect the compiled place index.", no_args_is_help=True)
 app.add_typer(gazetteer_app, name="gazetteer")
 
 err = Console(stderr=True, highlight=False)
 out = Console(highlight=False)
 
-AcceptOpt = Annotated[float, typer.Option("--accept", min=0.0, max=1.0,
-                                          help="Confidence needed for status 'matched' (0-1).")]
-CacheOpt = Annotated[Optional[Path], typer.Option("--cache", envvar="GEONORM_CACHE",
-                                                  help="SQLite cache file (default: in the user data folder).")]
+AcceptOpt = Annotated[
+    float,
+    typer.Option(
+        "--accept", min=0.0, max=1.0, help="Confidence needed for status 'matched' (0-1)."
+    ),
+]
+CacheOpt = Annotated[
+    Path | None,
+    typer.Option(
+        "--cache",
+        envvar="GEONORM_CACHE",
+        help="SQLite cache file (default: in the user data folder).",
+    ),
+]
 QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="No progress messages.")]
 
 
@@ -62,13 +76,15 @@ def lookup(
     quiet: QuietOpt = False,
 ) -> None:
     """Resolve location strings given on the command line."""
-    from .resolver import Resolver
+    from .resolve.resolver import Resolver
 
     resolver = Resolver(accept=accept, progress=_say(quiet))
     results = [(t, resolver.resolve(t)) for t in text]
     if as_json:
-        payload = [{"text": t, **{k: v for k, v in r.to_dict().items() if k not in ("evidence", "score")}}
-                   for t, r in results]
+        payload = [
+            {"text": t, **{k: v for k, v in r.to_dict().items() if k not in ("evidence", "score")}}
+            for t, r in results
+        ]
         out.print_json(json.dumps(payload, ensure_ascii=False))
         return
     table = Table(show_lines=False)
@@ -77,55 +93,125 @@ def lookup(
     for t, r in results:
         place = " / ".join(x for x in (r.city, r.subdivision, r.country) if x)
         cands = "; ".join(f"{c.label()} ({c.score:.2f})" for c in r.candidates[:3])
-        table.add_row(t, r.status.value, place, f"{r.confidence:.2f}" if r.country else "", r.reason.value, cands)
+        table.add_row(
+            t,
+            r.status.value,
+            place,
+            f"{r.confidence:.2f}" if r.country else "",
+            r.reason.value,
+            cands,
+        )
     out.print(table)
 
 
 @app.command()
 @handle_errors
 def clean(
-    input: Annotated[str, typer.Argument(help="File to clean: CSV, TSV, Parquet or JSON Lines ('-' for stdin).")],
+    input: Annotated[
+        str, typer.Argument(help="File to clean: CSV, TSV, Parquet or JSON Lines ('-' for stdin).")
+    ],
     column: Annotated[str, typer.Option("--column", "-c", help="Name of the location column.")],
-    output: Annotated[str, typer.Option("--out", "-o", help="Where to write the result ('-' for stdout).")],
+    output: Annotated[
+        str, typer.Option("--out", "-o", help="Where to write the result ('-' for stdout).")
+    ],
     cache: CacheOpt = None,
     accept: AcceptOpt = DEFAULT_ACCEPT,
     prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the added columns.")] = "geo_",
-    format: Annotated[Optional[str], typer.Option(
-        "--format", help="Output format: csv, tsv, parquet or jsonl (default: from --out's extension).")] = None,
-    separator: Annotated[Optional[str], typer.Option(
-        "--separator", help="Field separator of a CSV input (default: sniffed from the header).")] = None,
-    encoding: Annotated[str, typer.Option("--encoding", help="Text encoding of the input.")] = "utf-8",
-    workers: Annotated[Optional[int], typer.Option(
-        "--workers", help="Processes resolving new strings (default: number of cores).")] = None,
-    bad_lines: Annotated[Optional[Path], typer.Option(
-        "--bad-lines", help="Write rows with the wrong number of fields here and go on.")] = None,
-    report: Annotated[Optional[Path], typer.Option("--report", help="Write the summary as JSON here.")] = None,
-    remote: Annotated[Optional[str], typer.Option(
-        "--remote", help="Send the doubtful rest to a remote geocoder: a TOML adapter file (opt-in).")] = None,
-    budget: Annotated[Optional[int], typer.Option("--budget", min=0, help="Most requests in this run.")] = None,
-    budget_total: Annotated[Optional[int], typer.Option(
-        "--budget-total", min=0, help="Most requests across runs (counted in the cache).")] = None,
-    refresh: Annotated[bool, typer.Option("--refresh", help="Ask the remote service again.")] = False,
-    dry_run: Annotated[bool, typer.Option(
-        "--dry-run", help="With --remote: show what would be sent; send and write nothing.")] = False,
+    format: Annotated[
+        str | None,
+        typer.Option(
+            "--format",
+            help="Output format: csv, tsv, parquet or jsonl (default: from --out's extension).",
+        ),
+    ] = None,
+    separator: Annotated[
+        str | None,
+        typer.Option(
+            "--separator", help="Field separator of a CSV input (default: sniffed from the header)."
+        ),
+    ] = None,
+    encoding: Annotated[
+        str, typer.Option("--encoding", help="Text encoding of the input.")
+    ] = "utf-8",
+    workers: Annotated[
+        int | None,
+        typer.Option(
+            "--workers", help="Processes resolving new strings (default: number of cores)."
+        ),
+    ] = None,
+    bad_lines: Annotated[
+        Path | None,
+        typer.Option(
+            "--bad-lines", help="Write rows with the wrong number of fields here and go on."
+        ),
+    ] = None,
+    report: Annotated[
+        Path | None, typer.Option("--report", help="Write the summary as JSON here.")
+    ] = None,
+    remote: Annotated[
+        str | None,
+        typer.Option(
+            "--remote",
+            help="Send the doubtful rest to a remote geocoder: a TOML adapter file (opt-in).",
+        ),
+    ] = None,
+    budget: Annotated[
+        int | None, typer.Option("--budget", min=0, help="Most requests in this run.")
+    ] = None,
+    budget_total: Annotated[
+        int | None,
+        typer.Option(
+            "--budget-total", min=0, help="Most requests across runs (counted in the cache)."
+        ),
+    ] = None,
+    refresh: Annotated[
+        bool, typer.Option("--refresh", help="Ask the remote service again.")
+    ] = False,
+    dry_run: Annotated[
+        bool,
+        typer.Option(
+            "--dry-run", help="With --remote: show what would be sent; send and write nothing."
+        ),
+    ] = False,
     quiet: QuietOpt = False,
 ) -> None:
     """Append geo columns to every row of a table, in input order."""
-    from .batch import clean_file
-    from .cache import Cache
+    from .batch.clean import clean_file
+    from .batch.cache import Cache
 
     if (budget is not None or budget_total is not None or refresh or dry_run) and remote is None:
-        raise GeonormError("--budget, --budget-total, --refresh and --dry-run only apply with --remote",
-                           hint="add --remote ADAPTER.toml, or drop those options")
-    summary = clean_file(input, column, output, cache=Cache(cache), accept=accept, prefix=prefix,
-                         encoding=encoding, separator=separator, format=format, workers=workers,
-                         bad_lines=bad_lines, report=report, show_progress=not quiet and sys.stderr.isatty(),
-                         progress=_say(quiet), remote=remote, budget=budget, budget_total=budget_total,
-                         refresh=refresh, dry_run=dry_run)
+        raise GeonormError(
+            "--budget, --budget-total, --refresh and --dry-run only apply with --remote",
+            hint="add --remote ADAPTER.toml, or drop those options",
+        )
+    summary = clean_file(
+        input,
+        column,
+        output,
+        cache=Cache(cache),
+        accept=accept,
+        prefix=prefix,
+        encoding=encoding,
+        separator=separator,
+        format=format,
+        workers=workers,
+        bad_lines=bad_lines,
+        report=report,
+        show_progress=not quiet and sys.stderr.isatty(),
+        progress=_say(quiet),
+        remote=remote,
+        budget=budget,
+        budget_total=budget_total,
+        refresh=refresh,
+        dry_run=dry_run,
+    )
     if dry_run:
         r = summary.remote
-        typer.echo(f"would send {r['planned']:,} request(s) to {r['provider']} ({r['eligible']:,} doubtful strings, "
-                   f"{r['already_answered']:,} answered before, {r['over_budget']:,} over the budget); first:", err=True)
+        typer.echo(
+            f"would send {r['planned']:,} request(s) to {r['provider']} ({r['eligible']:,} doubtful strings, "
+            f"{r['already_answered']:,} answered before, {r['over_budget']:,} over the budget); first:",
+            err=True,
+        )
         for item in r["top_planned"]:
             typer.echo(f"  {item['rows']:>7,}  {item['text']}", err=True)
         return
@@ -136,16 +222,24 @@ def clean(
 def _print_summary(summary) -> None:
     shares = summary.to_dict()["status_share"]
     parts = ", ".join(f"{k} {v:,} ({shares[k]:.1%})" for k, v in summary.status.items())
-    typer.echo(f"{summary.rows:,} rows, {summary.distinct:,} distinct strings "
-               f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}", err=True)
+    typer.echo(
+        f"{summary.rows:,} rows, {summary.distinct:,} distinct strings "
+        f"({summary.cache_hits:,} from the cache) in {summary.seconds:.2f} s: {parts}",
+        err=True,
+    )
     if summary.bad_lines:
-        typer.echo(f"{summary.bad_lines:,} row(s) with the wrong number of fields were set aside", err=True)
+        typer.echo(
+            f"{summary.bad_lines:,} row(s) with the wrong number of fields were set aside", err=True
+        )
     r = summary.remote
     if r:
-        typer.echo(f"remote {r['provider']}: {r['requests']:,} request(s) for {r['answered']:,} new answer(s) "
-                   f"({r['with_results']:,} with results, {r['no_result']:,} without, {r['errors']:,} errors, "
-                   f"{r['retries']:,} retries); {r['already_answered']:,} answered before; "
-                   f"{r['strings_changed']:,} string(s) changed", err=True)
+        typer.echo(
+            f"remote {r['provider']}: {r['requests']:,} request(s) for {r['answered']:,} new answer(s) "
+            f"({r['with_results']:,} with results, {r['no_result']:,} without, {r['errors']:,} errors, "
+            f"{r['retries']:,} retries); {r['already_answered']:,} answered before; "
+            f"{r['strings_changed']:,} string(s) changed",
+            err=True,
+        )
         for message in r["messages"]:
             typer.echo(f"remote {message}", err=True)
     if summary.output and summary.output != "-":
@@ -155,7 +249,9 @@ def _print_summary(summary) -> None:
 @app.command()
 @handle_errors
 def demo(
-    out_dir: Annotated[Path, typer.Option("--out", help="Folder for the demo outputs.")] = Path("geonorm-demo"),
+    out_dir: Annotated[Path, typer.Option("--out", help="Folder for the demo outputs.")] = Path(
+        "geonorm-demo"
+    ),
     quiet: QuietOpt = False,
 ) -> None:
     """Clean the bundled demo member list and print a summary."""
@@ -173,8 +269,9 @@ def demo(
         out.print(f"{label}: {path}", markup=False)
 
 
-review_app = typer.Typer(help="The review loop: export doubtful strings, apply people's decisions.",
-                         no_args_is_help=True)
+review_app = typer.Typer(
+    help="The review loop: export doubtful strings, apply people's decisions.", no_args_is_help=True
+)
 app.add_typer(review_app, name="review")
 
 
@@ -183,43 +280,69 @@ app.add_typer(review_app, name="review")
 def review_export(
     cleaned: Annotated[Path, typer.Argument(help="A file written by geonorm clean.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Where to write the queue (CSV).")],
-    column: Annotated[Optional[str], typer.Option(
-        "--column", "-c", help="The location column (default: the one geonorm clean used).")] = None,
-    below: Annotated[Optional[float], typer.Option(
-        "--below", min=0.0, max=1.0, help="Also queue matched strings with confidence below this.")] = None,
-    top: Annotated[Optional[int], typer.Option("--top", min=1, help="Keep only the N most impactful lines.")] = None,
+    column: Annotated[
+        str | None,
+        typer.Option(
+            "--column", "-c", help="The location column (default: the one geonorm clean used)."
+        ),
+    ] = None,
+    below: Annotated[
+        float | None,
+        typer.Option(
+            "--below",
+            min=0.0,
+            max=1.0,
+            help="Also queue matched strings with confidence below this.",
+        ),
+    ] = None,
+    top: Annotated[
+        int | None, typer.Option("--top", min=1, help="Keep only the N most impactful lines.")
+    ] = None,
     prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the geo columns.")] = "geo_",
     cache: CacheOpt = None,
 ) -> None:
     """Write one line per doubtful distinct text, ranked by rows affected × doubt."""
-    from .cache import Cache
-    from .review import export_queue
+    from .batch.cache import Cache
+    from .review.queue import export_queue
 
-    n = export_queue(cleaned, out, column=column, below=below, top=top, prefix=prefix, cache=Cache(cache))
-    typer.echo(f"wrote {n:,} line(s) to {out}; fill in decision_country (ISO code or not_a_place), "
-               "optionally decision_subdivision, decision_city and decision_note, then run: "
-               f"geonorm review apply {out}", err=True)
+    n = export_queue(
+        cleaned, out, column=column, below=below, top=top, prefix=prefix, cache=Cache(cache)
+    )
+    typer.echo(
+        f"wrote {n:,} line(s) to {out}; fill in decision_country (ISO code or not_a_place), "
+        "optionally decision_subdivision, decision_city and decision_note, then run: "
+        f"geonorm review apply {out}",
+        err=True,
+    )
 
 
 @review_app.command("apply")
 @handle_errors
 def review_apply(
     queue: Annotated[Path, typer.Argument(help="The queue CSV with decisions filled in.")],
-    dry_run: Annotated[bool, typer.Option("--dry-run", help="Check the decisions, store nothing.")] = False,
+    dry_run: Annotated[
+        bool, typer.Option("--dry-run", help="Check the decisions, store nothing.")
+    ] = False,
     cache: CacheOpt = None,
 ) -> None:
     """Validate the decisions and store the valid ones as overrides."""
-    from .cache import Cache
-    from .review import apply_decisions
+    from .batch.cache import Cache
+    from .review.queue import apply_decisions
 
     rep = apply_decisions(queue, cache=Cache(cache), dry_run=dry_run)
     for problem in rep.problems:
         typer.echo(f"{queue}: {problem}", err=True)
     verb = "would store" if dry_run else "stored"
-    typer.echo(f"{verb} {rep.stored} decision(s) ({rep.new} new, {rep.changed} changed); {rep.unchanged} "
-               f"unchanged, {rep.skipped} line(s) without a decision, {len(rep.problems)} with problems", err=True)
+    typer.echo(
+        f"{verb} {rep.stored} decision(s) ({rep.new} new, {rep.changed} changed); {rep.unchanged} "
+        f"unchanged, {rep.skipped} line(s) without a decision, {len(rep.problems)} with problems",
+        err=True,
+    )
     if rep.problems:
-        typer.echo("Hint: fix the lines above and apply the file again; applying twice changes nothing", err=True)
+        typer.echo(
+            "Hint: fix the lines above and apply the file again; applying twice changes nothing",
+            err=True,
+        )
         raise typer.Exit(1)
 
 
@@ -230,7 +353,7 @@ def review_list(
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
 ) -> None:
     """List the stored decisions."""
-    from .cache import Cache
+    from .batch.cache import Cache
 
     decisions = list(Cache(cache).overrides().values())
     if as_json:
@@ -240,8 +363,11 @@ def review_list(
     for col in ("text", "decision", "note", "decided_at"):
         table.add_column(col, overflow="fold")
     for d in decisions:
-        what = "not a place" if d["not_a_place"] else " / ".join(x for x in (d["city"], d["subdivision"],
-                                                                             d["country"]) if x)
+        what = (
+            "not a place"
+            if d["not_a_place"]
+            else " / ".join(x for x in (d["city"], d["subdivision"], d["country"]) if x)
+        )
         table.add_row(d["text"], what, d["note"] or "", d["decided_at"])
     out.print(table)
 
@@ -249,12 +375,14 @@ def review_list(
 @review_app.command("undo")
 @handle_errors
 def review_undo(
-    text: Annotated[str, typer.Argument(help="The text whose decision to remove (any case or spacing).")],
+    text: Annotated[
+        str, typer.Argument(help="The text whose decision to remove (any case or spacing).")
+    ],
     cache: CacheOpt = None,
 ) -> None:
     """Remove a stored decision; later runs resolve the text again."""
-    from .cache import Cache
-    from .review import undo
+    from .batch.cache import Cache
+    from .review.queue import undo
 
     undo(text, cache=Cache(cache))
     typer.echo(f"removed the decision for {text!r}", err=True)
@@ -263,42 +391,73 @@ def review_undo(
 @app.command()
 @handle_errors
 def score(
-    labelled: Annotated[Path, typer.Argument(help="A file with location text and the true country.")],
+    labelled: Annotated[
+        Path, typer.Argument(help="A file with location text and the true country.")
+    ],
     column: Annotated[str, typer.Option("--column", "-c", help="The location text column.")],
-    truth: Annotated[str, typer.Option("--truth", help="Column with the true ISO 3166-1 alpha-2 code.")],
-    truth_subdivision: Annotated[Optional[str], typer.Option(
-        "--truth-subdivision", help="Column with the true ISO 3166-2 code.")] = None,
-    target_precision: Annotated[float, typer.Option(
-        "--target-precision", min=0.0, max=1.0, help="Find the threshold that reaches this precision.")] = 0.97,
+    truth: Annotated[
+        str, typer.Option("--truth", help="Column with the true ISO 3166-1 alpha-2 code.")
+    ],
+    truth_subdivision: Annotated[
+        str | None,
+        typer.Option("--truth-subdivision", help="Column with the true ISO 3166-2 code."),
+    ] = None,
+    target_precision: Annotated[
+        float,
+        typer.Option(
+            "--target-precision",
+            min=0.0,
+            max=1.0,
+            help="Find the threshold that reaches this precision.",
+        ),
+    ] = 0.97,
     accept: AcceptOpt = DEFAULT_ACCEPT,
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
 ) -> None:
     """Measure accuracy and calibration on a labelled sample."""
-    from .scoring import score_file
+    from .review.scoring import score_file
 
-    rep = score_file(labelled, column, truth, truth_subdivision=truth_subdivision, accept=accept,
-                     target_precision=target_precision)
+    rep = score_file(
+        labelled,
+        column,
+        truth,
+        truth_subdivision=truth_subdivision,
+        accept=accept,
+        target_precision=target_precision,
+    )
     if as_json:
         out.print_json(json.dumps(rep.to_dict()))
         return
-    out.print(f"{rep.rows} rows, {rep.positives} with a true country; at --accept {rep.accept:g}: "
-              f"{rep.matched} matched, precision {rep.precision:.3f}, recall {rep.recall:.3f}, F1 {rep.f1:.3f}",
-              markup=False)
+    out.print(
+        f"{rep.rows} rows, {rep.positives} with a true country; at --accept {rep.accept:g}: "
+        f"{rep.matched} matched, precision {rep.precision:.3f}, recall {rep.recall:.3f}, F1 {rep.f1:.3f}",
+        markup=False,
+    )
     if rep.subdivision_accuracy is not None:
-        out.print(f"subdivision right {rep.subdivision_accuracy:.3f} of {rep.subdivision_n} matched rows "
-                  "with a true subdivision", markup=False)
+        out.print(
+            f"subdivision right {rep.subdivision_accuracy:.3f} of {rep.subdivision_n} matched rows "
+            "with a true subdivision",
+            markup=False,
+        )
     t = Table(title="Precision and coverage by threshold")
     for col in ("threshold", "called", "precision", "coverage"):
         t.add_column(col, justify="right")
     for row in rep.by_threshold:
-        t.add_row(f"{row['threshold']:.2f}", str(row["called"]), f"{row['precision']:.3f}", f"{row['coverage']:.3f}")
+        t.add_row(
+            f"{row['threshold']:.2f}",
+            str(row["called"]),
+            f"{row['precision']:.3f}",
+            f"{row['coverage']:.3f}",
+        )
     out.print(t)
     t = Table(title=f"Reliability (expected calibration error {rep.ece:.3f})")
     for col in ("confidence", "answers", "mean confidence", "share right"):
         t.add_column(col, justify="right")
     for row in rep.reliability:
         if row["n"]:
-            t.add_row(row["bin"], str(row["n"]), f"{row['mean_confidence']:.3f}", f"{row['accuracy']:.3f}")
+            t.add_row(
+                row["bin"], str(row["n"]), f"{row['mean_confidence']:.3f}", f"{row['accuracy']:.3f}"
+            )
     out.print(t)
     if rep.confusions:
         t = Table(title="Most frequent confusions (matched rows)")
@@ -308,39 +467,75 @@ def score(
             t.add_row(c["truth"], c["given"], str(c["rows"]))
         out.print(t)
     if rep.threshold_for_target is not None:
-        out.print(f"--accept {rep.threshold_for_target:.2f} reaches precision {rep.target_precision:g} on this "
-                  f"sample (coverage {rep.coverage_at_target:.3f})", markup=False)
+        out.print(
+            f"--accept {rep.threshold_for_target:.2f} reaches precision {rep.target_precision:g} on this "
+            f"sample (coverage {rep.coverage_at_target:.3f})",
+            markup=False,
+        )
     else:
-        out.print(f"no threshold reaches precision {rep.target_precision:g} on this sample", markup=False)
+        out.print(
+            f"no threshold reaches precision {rep.target_precision:g} on this sample", markup=False
+        )
 
 
 @app.command()
 @handle_errors
 def tally(
     cleaned: Annotated[Path, typer.Argument(help="A file written by geonorm clean.")],
-    out: Annotated[Path, typer.Option("--out", "-o", help="Where to write the per-country CSV (+ .json sidecar).")],
-    by: Annotated[Optional[str], typer.Option("--by", help="Also count per group of this column.")] = None,
-    split: Annotated[Optional[str], typer.Option("--split", help="Separator of several groups in one cell.")] = None,
-    population: Annotated[Optional[Path], typer.Option(
-        "--population", help="Population table: CSV by ISO code or name, or a World Bank download.")] = None,
-    year: Annotated[Optional[int], typer.Option("--year", help="Year of the population table to use.")] = None,
-    include_review: Annotated[bool, typer.Option(
-        "--include-review", help="Count review rows with a single country guess too.")] = False,
-    min_count: Annotated[int, typer.Option("--min-count", min=1, help="Leave out countries with fewer rows.")] = 1,
+    out: Annotated[
+        Path,
+        typer.Option("--out", "-o", help="Where to write the per-country CSV (+ .json sidecar)."),
+    ],
+    by: Annotated[
+        str | None, typer.Option("--by", help="Also count per group of this column.")
+    ] = None,
+    split: Annotated[
+        str | None, typer.Option("--split", help="Separator of several groups in one cell.")
+    ] = None,
+    population: Annotated[
+        Path | None,
+        typer.Option(
+            "--population",
+            help="Population table: CSV by ISO code or name, or a World Bank download.",
+        ),
+    ] = None,
+    year: Annotated[
+        int | None, typer.Option("--year", help="Year of the population table to use.")
+    ] = None,
+    include_review: Annotated[
+        bool,
+        typer.Option("--include-review", help="Count review rows with a single country guess too."),
+    ] = False,
+    min_count: Annotated[
+        int, typer.Option("--min-count", min=1, help="Leave out countries with fewer rows.")
+    ] = 1,
     prefix: Annotated[str, typer.Option("--prefix", help="Prefix of the geo columns.")] = "geo_",
 ) -> None:
     """Per-country counts, rates per million with intervals, shrunk rates, location quotients."""
-    from .tally import tally_file, write_tally
+    from .figures.tally import tally_file, write_tally
 
     if split is not None and by is None:
-        raise GeonormError("--split only applies with --by", hint="add --by COLUMN, or drop --split")
-    result = tally_file(cleaned, by=by, split=split, population=population, year=year,
-                        include_review=include_review, min_count=min_count, prefix=prefix)
+        raise GeonormError(
+            "--split only applies with --by", hint="add --by COLUMN, or drop --split"
+        )
+    result = tally_file(
+        cleaned,
+        by=by,
+        split=split,
+        population=population,
+        year=year,
+        include_review=include_review,
+        min_count=min_count,
+        prefix=prefix,
+    )
     sidecar = write_tally(result, out, by=by is not None)
     f = result.funnel
-    typer.echo(f"{f['rows']:,} rows, {f['rows_with_text']:,} with text, {f['matched']:,} matched, "
-               f"{f['review']:,} review, {f['unmatched']:,} unmatched, {f['not_a_place']:,} not a place; "
-               f"{f['located']:,} located (disclosure {result.sidecar['disclosure_share']:.1%})", err=True)
+    typer.echo(
+        f"{f['rows']:,} rows, {f['rows_with_text']:,} with text, {f['matched']:,} matched, "
+        f"{f['review']:,} review, {f['unmatched']:,} unmatched, {f['not_a_place']:,} not a place; "
+        f"{f['located']:,} located (disclosure {result.sidecar['disclosure_share']:.1%})",
+        err=True,
+    )
     missing = result.sidecar["countries_without_population"]
     if missing:
         typer.echo(f"no population for: {', '.join(missing)} (rates left empty)", err=True)
@@ -353,12 +548,14 @@ def map_command(
     table: Annotated[Path, typer.Argument(help="A CSV written by geonorm tally.")],
     value: Annotated[str, typer.Option("--value", help="Column to map, e.g. shrunk_per_million.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="map.svg, map.html or map.png.")],
-    title: Annotated[Optional[str], typer.Option("--title", help="Title above the map.")] = None,
-    unit: Annotated[Optional[str], typer.Option("--unit", help="Unit shown in the legend.")] = None,
-    group: Annotated[Optional[str], typer.Option("--group", help="With a --by tally: the group to map.")] = None,
+    title: Annotated[str | None, typer.Option("--title", help="Title above the map.")] = None,
+    unit: Annotated[str | None, typer.Option("--unit", help="Unit shown in the legend.")] = None,
+    group: Annotated[
+        str | None, typer.Option("--group", help="With a --by tally: the group to map.")
+    ] = None,
 ) -> None:
     """Draw an offline world choropleth of one column of a tally."""
-    from .mapping import write_map
+    from .figures.mapping import write_map
 
     write_map(table, value, out, title=title, unit=unit, group=group)
     typer.echo(f"wrote {out}", err=True)
@@ -367,10 +564,10 @@ def map_command(
 @gazetteer_app.command("build")
 @handle_errors
 def gazetteer_build(
-    path: Annotated[Optional[Path], typer.Option("--path", help="Where to write the index.")] = None,
+    path: Annotated[Path | None, typer.Option("--path", help="Where to write the index.")] = None,
 ) -> None:
     """(Re)build the place index from the installed packages."""
-    from .index import build_index
+    from .resolve.index import build_index
 
     built = build_index(path, progress=lambda m: err.print(m, markup=False))
     out.print(str(built), markup=False)
@@ -379,11 +576,11 @@ def gazetteer_build(
 @gazetteer_app.command("info")
 @handle_errors
 def gazetteer_info(
-    path: Annotated[Optional[Path], typer.Option("--path", help="Index file to describe.")] = None,
+    path: Annotated[Path | None, typer.Option("--path", help="Index file to describe.")] = None,
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON.")] = False,
 ) -> None:
     """Describe the compiled place index: version, sources, counts."""
-    from .index import PlaceIndex, default_index_path
+    from .resolve.index import PlaceIndex, default_index_path
 
     p = path or default_index_path()
     idx = PlaceIndex(p)

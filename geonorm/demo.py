@@ -9,12 +9,12 @@ from collections.abc import Callable
 from importlib import resources
 from pathlib import Path
 
-from .batch import clean_file
-from .cache import Cache
+from .batch.clean import clean_file
+from .batch.cache import Cache
 from .errors import InputError
-from .mapping import write_map
-from .review import export_queue
-from .tally import tally_file, write_tally
+from .figures.mapping import write_map
+from .review.queue import export_queue
+from .figures.tally import tally_file, write_tally
 
 __all__ = ["demo_file", "run_demo"]
 
@@ -26,8 +26,10 @@ def demo_file() -> Path:
     source = Path(__file__).resolve().parent.parent / "demo_data" / "members.csv"
     if source.exists():
         return source
-    raise InputError("the demo member list is missing from this installation",
-                     hint="reinstall geonorm, or run demo_data/generate.py in the source tree")
+    raise InputError(
+        "the demo member list is missing from this installation",
+        hint="reinstall geonorm, or run demo_data/generate.py in the source tree",
+    )
 
 
 def run_demo(out_dir: Path, progress: Callable[[str], None] | None = None) -> dict:
@@ -45,12 +47,31 @@ def run_demo(out_dir: Path, progress: Callable[[str], None] | None = None) -> di
     by_kind = tally_file(cleaned, by="station_kind")
     per_kind = out_dir / "countries_by_station_kind.csv"
     write_tally(by_kind, per_kind, by=True)
-    map_svg = write_map(per_country, "shrunk_per_million", out_dir / "members_per_million.svg",
-                        title="Backyard Weather Network members per million people (shrunk)")
-    map_html = write_map(per_country, "shrunk_per_million", out_dir / "members_per_million.html",
-                         title="Backyard Weather Network members per million people (shrunk)")
+    map_svg = write_map(
+        per_country,
+        "shrunk_per_million",
+        out_dir / "members_per_million.svg",
+        title="Backyard Weather Network members per million people (shrunk)",
+    )
+    map_html = write_map(
+        per_country,
+        "shrunk_per_million",
+        out_dir / "members_per_million.html",
+        title="Backyard Weather Network members per million people (shrunk)",
+    )
     top = [(r["country"], r["count"]) for r in countries.rows[:10]]
-    return {"summary": summary, "top_countries": top, "queued": queued, "tally": countries,
-            "files": {"cleaned file": cleaned, "review queue (top 200)": queue, "per-country figures": per_country,
-                      "per country and station kind": per_kind, "map (SVG)": map_svg, "map (HTML)": map_html,
-                      "cache": out_dir / "cache.sqlite"}}
+    return {
+        "summary": summary,
+        "top_countries": top,
+        "queued": queued,
+        "tally": countries,
+        "files": {
+            "cleaned file": cleaned,
+            "review queue (top 200)": queue,
+            "per-country figures": per_country,
+            "per country and station kind": per_kind,
+            "map (SVG)": map_svg,
+            "map (HTML)": map_html,
+            "cache": out_dir / "cache.sqlite",
+        },
+    }

@@ -3,7 +3,7 @@
 
 from __future__ import annotations
 
-__all__ = ["GeonormError", "InputError", "IndexError_", "CacheError"]
+__all__ = ["CacheError", "GeonormError", "IndexError_", "InputError"]
 
 
 class GeonormError(Exception):
@@ -22,7 +22,7 @@ class InputError(GeonormError):
     """A bad input file, a missing column, a bad option value."""
 
 
-class IndexError_(GeonormError):  # noqa: N801 - avoids shadowing the builtin IndexError
+class IndexError_(GeonormError):
     """The place index is missing, stale or unreadable."""
 
 

@@ -17,7 +17,9 @@ def resolver() -> Resolver:
     return Resolver()
 
 
-def wait_for_rows(proc: subprocess.Popen, db: Path, table: str, n: int, timeout: float = 120) -> int:
+def wait_for_rows(
+    proc: subprocess.Popen, db: Path, table: str, n: int, timeout: float = 120
+) -> int:
     """Poll ``table`` of the SQLite file ``db`` while ``proc`` runs, until it holds ``n`` rows."""
     deadline = time.time() + timeout
     rows = 0

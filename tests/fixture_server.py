@@ -19,12 +19,16 @@ from urllib.parse import parse_qs, urlparse
 @dataclass
 class Behaviour:
     answers: dict[str, list[dict]] = field(default_factory=dict)  # query → results
-    key: str | None = None               # expected X-Api-Key, if any
-    fail_first: dict[str, list] = field(default_factory=dict)  # query → [(status, headers), …] before success
-    slow: dict[str, float] = field(default_factory=dict)       # query → seconds to wait (first call only)
-    malformed: set[str] = field(default_factory=set)           # queries answered with broken JSON
-    always: int | None = None            # every call answers this status
-    delay: float = 0.0                   # every call waits this long
+    key: str | None = None  # expected X-Api-Key, if any
+    fail_first: dict[str, list] = field(
+        default_factory=dict
+    )  # query → [(status, headers), …] before success
+    slow: dict[str, float] = field(
+        default_factory=dict
+    )  # query → seconds to wait (first call only)
+    malformed: set[str] = field(default_factory=set)  # queries answered with broken JSON
+    always: int | None = None  # every call answers this status
+    delay: float = 0.0  # every call waits this long
 
 
 class FixtureServer:
@@ -38,11 +42,11 @@ class FixtureServer:
             def log_message(self, *args) -> None:  # quiet
                 pass
 
-            def do_GET(self) -> None:  # noqa: N802
+            def do_GET(self) -> None:
                 q = parse_qs(urlparse(self.path).query).get("q", [""])[0]
                 server.handle(self, q)
 
-            def do_POST(self) -> None:  # noqa: N802
+            def do_POST(self) -> None:
                 length = int(self.headers.get("Content-Length") or 0)
                 body = json.loads(self.rfile.read(length) or b"{}")
                 server.handle(self, str(body.get("q", "")))
@@ -89,7 +93,13 @@ class FixtureServer:
         return self.reply(h, 200, {"hits": b.answers.get(q, [])})
 
     @staticmethod
-    def reply(h: BaseHTTPRequestHandler, status: int, body, headers: dict | None = None, raw: bytes | None = None):
+    def reply(
+        h: BaseHTTPRequestHandler,
+        status: int,
+        body,
+        headers: dict | None = None,
+        raw: bytes | None = None,
+    ):
         data = raw if raw is not None else json.dumps(body).encode()
         try:
             h.send_response(status)
@@ -103,7 +113,9 @@ class FixtureServer:
             pass
 
 
-def hit(cc: str, lat: float, lon: float, town: str = "", region: str = "", relevance: float | None = 0.9) -> dict:
+def hit(
+    cc: str, lat: float, lon: float, town: str = "", region: str = "", relevance: float | None = 0.9
+) -> dict:
     """One result in the shape the test adapter reads."""
     out = {"address": {"cc": cc, "town": town, "region": region}, "lat": lat, "lon": lon}
     if relevance is not None:
@@ -135,9 +147,28 @@ retries = {retries}
 """
 
 
-def adapter_file(path, url: str, *, method: str = "GET", key: bool = False, per_second: float = 200,
-                 concurrency: int = 4, timeout: float = 2, retries: int = 3):
+def adapter_file(
+    path,
+    url: str,
+    *,
+    method: str = "GET",
+    key: bool = False,
+    per_second: float = 200,
+    concurrency: int = 4,
+    timeout: float = 2,
+    retries: int = 3,
+):
     key_lines = 'key_env = "TEAM_GEO_KEY"\nkey_header = "X-Api-Key"\n' if key else ""
-    path.write_text(ADAPTER.format(url=url, method=method, key=key_lines, per_second=per_second,
-                                   concurrency=concurrency, timeout=timeout, retries=retries), encoding="utf-8")
+    path.write_text(
+        ADAPTER.format(
+            url=url,
+            method=method,
+            key=key_lines,
+            per_second=per_second,
+            concurrency=concurrency,
+            timeout=timeout,
+            retries=retries,
+        ),
+        encoding="utf-8",
+    )
     return path

@@ -10,9 +10,29 @@ from geonorm.demo import run_demo
 
 def test_public_api_is_explicit():
     assert sorted(geonorm.__all__) == sorted(
-        ["Cache", "CacheError", "Candidate", "CleanSummary", "DEFAULT_ACCEPT", "GeonormError", "IndexError_",
-         "InputError", "PlaceIndex", "Query", "Reason", "Resolution", "Resolver", "Status", "__version__",
-         "build_index", "clean_file", "load_index", "normalize", "resolve_series"])
+        [
+            "Cache",
+            "CacheError",
+            "Candidate",
+            "CleanSummary",
+            "DEFAULT_ACCEPT",
+            "GeonormError",
+            "IndexError_",
+            "InputError",
+            "PlaceIndex",
+            "Query",
+            "Reason",
+            "Resolution",
+            "Resolver",
+            "Status",
+            "__version__",
+            "build_index",
+            "clean_file",
+            "load_index",
+            "normalize",
+            "resolve_series",
+        ]
+    )
     for name in geonorm.__all__:
         assert hasattr(geonorm, name)
 
@@ -36,17 +56,30 @@ def test_demo_end_to_end(tmp_path):
     result = run_demo(tmp_path)
     summary = result["summary"]
     assert summary.rows == 20_000
-    cleaned = list(csv.DictReader(open(tmp_path / "members_clean.csv", encoding="utf-8", newline="")))
+    cleaned = list(
+        csv.DictReader(open(tmp_path / "members_clean.csv", encoding="utf-8", newline=""))
+    )
     source = list(csv.DictReader(open(geonorm.demo.demo_file(), encoding="utf-8", newline="")))
     assert [r["member_id"] for r in cleaned] == [r["member_id"] for r in source]
     assert all(r["location"] == s["location"] for r, s in zip(cleaned, source))
     assert summary.status["matched"] / summary.rows > 0.7
     assert dict(result["top_countries"])["US"] > dict(result["top_countries"]).get("GB", 0)
-    for label in ("review queue (top 200)", "per-country figures", "per country and station kind", "map (SVG)",
-                  "map (HTML)"):
+    for label in (
+        "review queue (top 200)",
+        "per-country figures",
+        "per country and station kind",
+        "map (SVG)",
+        "map (HTML)",
+    ):
         assert result["files"][label].exists(), label
-    by_kind = list(csv.DictReader(open(result["files"]["per country and station kind"], encoding="utf-8")))
-    us_lightning = next(r for r in by_kind if r["country"] == "US" and r["group"] == "lightning_detector")
-    assert us_lightning["lq_flag"] == "over"  # the scenario makes lightning detectors commoner in the US
+    by_kind = list(
+        csv.DictReader(open(result["files"]["per country and station kind"], encoding="utf-8"))
+    )
+    us_lightning = next(
+        r for r in by_kind if r["country"] == "US" and r["group"] == "lightning_detector"
+    )
+    assert (
+        us_lightning["lq_flag"] == "over"
+    )  # the scenario makes lightning detectors commoner in the US
     again = run_demo(tmp_path)["summary"]
     assert again.cache_hits == again.distinct

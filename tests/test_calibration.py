@@ -5,14 +5,16 @@ from __future__ import annotations
 import math
 import random
 
-from geonorm.calibration import Calibration, expected_calibration_error, fit_platt, reliability
+from geonorm.resolve.calibration import Calibration, expected_calibration_error, fit_platt, reliability
 
 
 def test_ece_hand_computed():
     # Two bins: [0.9, 1.0) holds 0.9, 0.9 with 1 of 2 right → |0.5 - 0.9| = 0.4, weight 2/4;
     # [0.2, 0.3) holds 0.2, 0.2 with 0 of 2 right → |0 - 0.2| = 0.2, weight 2/4.
     # ECE = 0.5 * 0.4 + 0.5 * 0.2 = 0.3 (computed by hand).
-    assert math.isclose(expected_calibration_error([0.9, 0.9, 0.2, 0.2], [True, False, False, False]), 0.3)
+    assert math.isclose(
+        expected_calibration_error([0.9, 0.9, 0.2, 0.2], [True, False, False, False]), 0.3
+    )
 
 
 def test_reliability_bins():

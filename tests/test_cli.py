@@ -8,7 +8,7 @@ import json
 from typer.testing import CliRunner
 
 from geonorm.cli import app
-from geonorm.index import INDEX_VERSION
+from geonorm.resolve.index import INDEX_VERSION
 
 runner = CliRunner()
 
@@ -34,16 +34,50 @@ def test_lookup_table_lists_candidates():
 
 def test_clean_appends_columns_in_order(tmp_path):
     src, dst = tmp_path / "in.csv", tmp_path / "out.csv"
-    _write(src, [["id", "where", "note"], ["1", "München", "007"], ["2", "", "1e5"], ["3", "localhost", "TRUE"],
-                 ["4", "München", ""]])
-    r = runner.invoke(app, ["clean", str(src), "--column", "where", "--out", str(dst),
-                            "--cache", str(tmp_path / "c.sqlite")])
+    _write(
+        src,
+        [
+            ["id", "where", "note"],
+            ["1", "München", "007"],
+            ["2", "", "1e5"],
+            ["3", "localhost", "TRUE"],
+            ["4", "München", ""],
+        ],
+    )
+    r = runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "where",
+            "--out",
+            str(dst),
+            "--cache",
+            str(tmp_path / "c.sqlite"),
+        ],
+    )
     assert r.exit_code == 0, r.output
     rows = list(csv.reader(open(dst, encoding="utf-8", newline="")))
-    assert rows[0] == ["id", "where", "note", "geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon",
-                       "geo_confidence", "geo_reason", "geo_status"]
-    assert [r[:3] for r in rows[1:]] == [["1", "München", "007"], ["2", "", "1e5"], ["3", "localhost", "TRUE"],
-                                         ["4", "München", ""]]
+    assert rows[0] == [
+        "id",
+        "where",
+        "note",
+        "geo_country",
+        "geo_subdivision",
+        "geo_city",
+        "geo_lat",
+        "geo_lon",
+        "geo_confidence",
+        "geo_reason",
+        "geo_status",
+    ]
+    assert [r[:3] for r in rows[1:]] == [
+        ["1", "München", "007"],
+        ["2", "", "1e5"],
+        ["3", "localhost", "TRUE"],
+        ["4", "München", ""],
+    ]
     assert rows[1][3:6] == ["DE", "DE-BY", "Munich"]
     assert rows[2][-1] == "not_a_place" and rows[3][-1] == "not_a_place"
 
@@ -51,7 +85,16 @@ def test_clean_appends_columns_in_order(tmp_path):
 def test_second_run_answers_from_cache(tmp_path):
     src = tmp_path / "in.csv"
     _write(src, [["loc"], ["Paris"], ["paris "], ["Tokyo"]])
-    args = ["clean", str(src), "--column", "loc", "--out", str(tmp_path / "o.csv"), "--cache", str(tmp_path / "c.db")]
+    args = [
+        "clean",
+        str(src),
+        "--column",
+        "loc",
+        "--out",
+        str(tmp_path / "o.csv"),
+        "--cache",
+        str(tmp_path / "c.db"),
+    ]
     first = runner.invoke(app, args)
     second = runner.invoke(app, args)
     assert "0 from the cache" in first.stderr
@@ -61,8 +104,19 @@ def test_second_run_answers_from_cache(tmp_path):
 def test_missing_column_lists_columns(tmp_path):
     src = tmp_path / "in.csv"
     _write(src, [["id", "location_text"], ["1", "Oslo"]])
-    r = runner.invoke(app, ["clean", str(src), "--column", "location", "--out", str(tmp_path / "o.csv"),
-                            "--cache", str(tmp_path / "c.db")])
+    r = runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "location",
+            "--out",
+            str(tmp_path / "o.csv"),
+            "--cache",
+            str(tmp_path / "c.db"),
+        ],
+    )
     assert r.exit_code == 1
     assert r.stderr == (
         f"Error: column 'location' is not in {src}; its columns are: id, location_text\n"
@@ -72,7 +126,10 @@ def test_missing_column_lists_columns(tmp_path):
 
 
 def test_missing_file(tmp_path):
-    r = runner.invoke(app, ["clean", str(tmp_path / "nope.csv"), "--column", "x", "--out", str(tmp_path / "o.csv")])
+    r = runner.invoke(
+        app,
+        ["clean", str(tmp_path / "nope.csv"), "--column", "x", "--out", str(tmp_path / "o.csv")],
+    )
     assert r.exit_code == 1
     assert r.stderr.startswith(f"Error: input file {tmp_path / 'nope.csv'} does not exist\n")
 
@@ -80,8 +137,19 @@ def test_missing_file(tmp_path):
 def test_empty_file(tmp_path):
     src = tmp_path / "empty.csv"
     src.write_text("")
-    r = runner.invoke(app, ["clean", str(src), "--column", "x", "--out", str(tmp_path / "o.csv"),
-                            "--cache", str(tmp_path / "c.db")])
+    r = runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "x",
+            "--out",
+            str(tmp_path / "o.csv"),
+            "--cache",
+            str(tmp_path / "c.db"),
+        ],
+    )
     assert r.exit_code == 1
     assert r.stderr == f"Error: {src} is empty\nHint: pass a file with a header line and rows\n"
 
@@ -89,12 +157,36 @@ def test_empty_file(tmp_path):
 def test_wrong_encoding_suggests_option(tmp_path):
     src = tmp_path / "latin.csv"
     src.write_bytes("loc\nS\xe3o Paulo\n".encode("latin-1"))
-    r = runner.invoke(app, ["clean", str(src), "--column", "loc", "--out", str(tmp_path / "o.csv"),
-                            "--cache", str(tmp_path / "c.db")])
+    r = runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "loc",
+            "--out",
+            str(tmp_path / "o.csv"),
+            "--cache",
+            str(tmp_path / "c.db"),
+        ],
+    )
     assert r.exit_code == 1
     assert "--encoding" in r.stderr
-    ok = runner.invoke(app, ["clean", str(src), "--column", "loc", "--out", str(tmp_path / "o.csv"),
-                             "--cache", str(tmp_path / "c.db"), "--encoding", "latin-1"])
+    ok = runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "loc",
+            "--out",
+            str(tmp_path / "o.csv"),
+            "--cache",
+            str(tmp_path / "c.db"),
+            "--encoding",
+            "latin-1",
+        ],
+    )
     assert ok.exit_code == 0, ok.output
 
 

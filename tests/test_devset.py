@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pytest
 
-from geonorm.calibration import expected_calibration_error
+from geonorm.resolve.calibration import expected_calibration_error
 
 DEVSET = Path(__file__).parent / "data" / "locations_dev.csv"
 NOT_A_PLACE_KINDS = {"junk", "empty_like", "fictional"}
@@ -26,7 +26,11 @@ def scored(resolver):
 
 
 def test_precision_and_recall_of_matched(scored):
-    tp = sum(1 for g, r in scored if r.status.value == "matched" and r.country == g["country"] and g["country"])
+    tp = sum(
+        1
+        for g, r in scored
+        if r.status.value == "matched" and r.country == g["country"] and g["country"]
+    )
     fp = sum(1 for g, r in scored if r.status.value == "matched" and r.country != g["country"])
     positives = sum(1 for g, _ in scored if g["country"])
     assert tp / (tp + fp) >= 0.97
@@ -39,8 +43,11 @@ def test_not_a_place_recall(scored):
 
 
 def test_subdivision_accuracy(scored):
-    hits = [(g, r) for g, r in scored
-            if g["subdivision"] and r.status.value == "matched" and r.country == g["country"]]
+    hits = [
+        (g, r)
+        for g, r in scored
+        if g["subdivision"] and r.status.value == "matched" and r.country == g["country"]
+    ]
     assert sum(r.subdivision == g["subdivision"] for g, r in hits) / len(hits) >= 0.90
 
 
@@ -48,8 +55,11 @@ def test_every_kind_mostly_right(scored):
     right, total = Counter(), Counter()
     for g, r in scored:
         total[g["kind"]] += 1
-        ok = (r.status.value == "matched" and r.country == g["country"]) if g["country"] \
+        ok = (
+            (r.status.value == "matched" and r.country == g["country"])
+            if g["country"]
             else r.status.value != "matched"
+        )
         right[g["kind"]] += ok
     low = {k: f"{right[k]}/{total[k]}" for k in total if right[k] / total[k] < 0.75}
     assert low == {}
@@ -57,5 +67,7 @@ def test_every_kind_mostly_right(scored):
 
 def test_calibration_error_is_small(scored):
     given = [(g, r) for g, r in scored if r.country]
-    ece = expected_calibration_error([r.confidence for _, r in given], [r.country == g["country"] for g, r in given])
+    ece = expected_calibration_error(
+        [r.confidence for _, r in given], [r.country == g["country"] for g, r in given]
+    )
     assert ece <= 0.05

@@ -72,9 +72,41 @@ def test_every_flag_emoji_resolves(resolver):
 
 # 33 locales across Latin, Cyrillic, Greek, Arabic, Hebrew, Devanagari, Bengali,
 # Tamil, Thai, Georgian, Armenian, Ethiopic, Han, Kana and Hangul scripts.
-CLDR_LOCALES = ["en", "de", "fr", "es", "it", "pt", "nl", "pl", "sv", "tr", "vi", "id", "sw", "fi", "hu",
-                "ru", "uk", "bg", "sr", "el", "ar", "fa", "he", "hi", "bn", "ta", "th", "ka", "hy", "am",
-                "zh", "ja", "ko"]
+CLDR_LOCALES = [
+    "en",
+    "de",
+    "fr",
+    "es",
+    "it",
+    "pt",
+    "nl",
+    "pl",
+    "sv",
+    "tr",
+    "vi",
+    "id",
+    "sw",
+    "fi",
+    "hu",
+    "ru",
+    "uk",
+    "bg",
+    "sr",
+    "el",
+    "ar",
+    "fa",
+    "he",
+    "hi",
+    "bn",
+    "ta",
+    "th",
+    "ka",
+    "hy",
+    "am",
+    "zh",
+    "ja",
+    "ko",
+]
 
 
 def test_cldr_country_names_resolve(resolver):
@@ -86,10 +118,16 @@ def test_cldr_country_names_resolve(resolver):
     # Elena" towns of Peru and Ecuador).
     total, wrong = 0, {}
     for locale in CLDR_LOCALES:
-        names = {code: name for code, name in Locale.parse(locale).territories.items()
-                 if len(code) == 2 and code.isalpha() and pycountry.countries.get(alpha_2=code)}
-        bad = {code: (name, _country(resolver, name)) for code, name in names.items()
-               if _country(resolver, name) != code}
+        names = {
+            code: name
+            for code, name in Locale.parse(locale).territories.items()
+            if len(code) == 2 and code.isalpha() and pycountry.countries.get(alpha_2=code)
+        }
+        bad = {
+            code: (name, _country(resolver, name))
+            for code, name in names.items()
+            if _country(resolver, name) != code
+        }
         assert len(bad) <= 0.03 * len(names), (locale, bad)
         total += len(names)
         wrong.update({(locale, code): v for code, v in bad.items()})
@@ -153,7 +191,10 @@ def test_gb_nations_resolve(resolver):
 def _haversine_km(a, b):
     # Haversine great-circle distance, mean Earth radius 6371.0088 km (IUGG).
     la1, lo1, la2, lo2 = map(math.radians, (*a, *b))
-    h = math.sin((la2 - la1) / 2) ** 2 + math.cos(la1) * math.cos(la2) * math.sin((lo2 - lo1) / 2) ** 2
+    h = (
+        math.sin((la2 - la1) / 2) ** 2
+        + math.cos(la1) * math.cos(la2) * math.sin((lo2 - lo1) / 2) ** 2
+    )
     return 2 * 6371.0088 * math.asin(math.sqrt(h))
 
 
@@ -176,6 +217,9 @@ def test_most_populous_geonames_places_resolve_near_their_coordinates(resolver):
     far = []
     for c in top:
         res = resolver.resolve(f"{c['name']}, {countries[c['countrycode']]['name']}")
-        if res.lat is None or _haversine_km((res.lat, res.lon), (c["latitude"], c["longitude"])) > 10:
+        if (
+            res.lat is None
+            or _haversine_km((res.lat, res.lon), (c["latitude"], c["longitude"])) > 10
+        ):
             far.append((c["name"], c["countrycode"], res.city, res.country))
     assert far == []

@@ -17,7 +17,7 @@ from fixture_server import Behaviour, FixtureServer, adapter_file, hit
 from typer.testing import CliRunner
 
 from geonorm.cli import app
-from geonorm.remote import RemoteError, TomlAdapter
+from geonorm.batch.remote import RemoteError, TomlAdapter
 
 runner = CliRunner()
 # Invented place names the offline index cannot know; the fixture service knows some of them.
@@ -34,9 +34,25 @@ def _table(path, counts: dict[str, int], extra: dict[str, int] | None = None):
 
 
 def _clean(tmp_path, src, adapter, *extra, env=None):
-    return runner.invoke(app, ["clean", str(src), "--column", "location", "--out", str(tmp_path / "out.csv"),
-                               "--cache", str(tmp_path / "cache.sqlite"), "--workers", "1", "--remote", str(adapter),
-                               *map(str, extra)], env=env)
+    return runner.invoke(
+        app,
+        [
+            "clean",
+            str(src),
+            "--column",
+            "location",
+            "--out",
+            str(tmp_path / "out.csv"),
+            "--cache",
+            str(tmp_path / "cache.sqlite"),
+            "--workers",
+            "1",
+            "--remote",
+            str(adapter),
+            *map(str, extra),
+        ],
+        env=env,
+    )
 
 
 def _rows(tmp_path):
@@ -47,12 +63,19 @@ def test_adapter_file_errors_name_the_line(tmp_path):
     good = adapter_file(tmp_path / "a.toml", "https://geo.example.invalid/find")
     text = good.read_text()
     cases = {
-        "unknown": (text.replace('query_param = "q"', 'query_param = "q"\nquery_parm = "x"'),
-                    "line 6: unknown key 'query_parm' in [remote]"),
-        "type": (text.replace("concurrency = 4", 'concurrency = "four"'), "line 19: concurrency must be a whole number"),
+        "unknown": (
+            text.replace('query_param = "q"', 'query_param = "q"\nquery_parm = "x"'),
+            "line 6: unknown key 'query_parm' in [remote]",
+        ),
+        "type": (
+            text.replace("concurrency = 4", 'concurrency = "four"'),
+            "line 19: concurrency must be a whole number",
+        ),
         "missing": (text.replace('lat = "lat"\n', ""), "line 8: [remote.response] lacks 'lat'"),
-        "url": (text.replace("https://geo.example.invalid/find", "geo.example.invalid"),
-                "line 3: url 'geo.example.invalid' is not an http(s) URL"),
+        "url": (
+            text.replace("https://geo.example.invalid/find", "geo.example.invalid"),
+            "line 3: url 'geo.example.invalid' is not an http(s) URL",
+        ),
         "syntax": (text.replace("per_second = 200", "per_second = = 200"), "is not valid TOML"),
     }
     for name, (body, message) in cases.items():
@@ -62,15 +85,23 @@ def test_adapter_file_errors_name_the_line(tmp_path):
             TomlAdapter(path)
         assert message in str(err.value), (name, str(err.value))
     keyed = adapter_file(tmp_path / "k.toml", "https://geo.example.invalid/find", key=True)
-    with pytest.raises(RemoteError, match="line 7: the environment variable TEAM_GEO_KEY is not set"):
+    with pytest.raises(
+        RemoteError, match="line 7: the environment variable TEAM_GEO_KEY is not set"
+    ):
         TomlAdapter(keyed, environ={})
 
 
 def test_budget_is_spent_in_impact_order_and_never_twice(tmp_path):
-    behaviour = Behaviour(answers={"zorbaville": [hit("FR", 45.1, 4.8, "Zorbaville")],
-                                   "quellmoor": [hit("DE", 52.0, 9.0)]})
+    behaviour = Behaviour(
+        answers={
+            "zorbaville": [hit("FR", 45.1, 4.8, "Zorbaville")],
+            "quellmoor": [hit("DE", 52.0, 9.0)],
+        }
+    )
     with FixtureServer(behaviour) as server:
-        adapter = adapter_file(tmp_path / "a.toml", server.url, concurrency=1)  # one at a time: order is visible
+        adapter = adapter_file(
+            tmp_path / "a.toml", server.url, concurrency=1
+        )  # one at a time: order is visible
         src = _table(tmp_path / "in.csv", UNKNOWN)
         dry = _clean(tmp_path, src, adapter, "--budget", 2, "--dry-run")
         assert dry.exit_code == 0, dry.output
@@ -79,7 +110,10 @@ def test_budget_is_spent_in_impact_order_and_never_twice(tmp_path):
         assert server.counts() == {} and not (tmp_path / "out.csv").exists()
         r = _clean(tmp_path, src, adapter, "--budget", 2)
         assert r.exit_code == 0, r.output
-        assert list(server.counts()) == ["zorbaville", "quellmoor"]  # most rows first, and only those
+        assert list(server.counts()) == [
+            "zorbaville",
+            "quellmoor",
+        ]  # most rows first, and only those
         rows = {row["location"]: row for row in _rows(tmp_path)}
         assert rows["Zorbaville"]["geo_country"] == "FR"
         assert rows["Zorbaville"]["geo_reason"] == "remote_found:team-geocoder"
@@ -90,7 +124,7 @@ def test_budget_is_spent_in_impact_order_and_never_twice(tmp_path):
         assert again.exit_code == 0
         assert sum(server.counts().values()) == 4  # two new strings, nothing asked twice
         third = _clean(tmp_path, src, adapter)
-        assert server.counts() == {k: 1 for k in UNKNOWN}
+        assert server.counts() == dict.fromkeys(UNKNOWN, 1)
         assert "0 request(s) for 0 new answer(s)" in _clean(tmp_path, src, adapter).stderr
         assert third.exit_code == 0
         refreshed = _clean(tmp_path, src, adapter, "--refresh", "--budget", 1)
@@ -107,9 +141,13 @@ def test_budget_total_is_kept_across_runs(tmp_path):
 
 
 def test_429_with_retry_after_and_5xx_then_success(tmp_path):
-    behaviour = Behaviour(answers={"zorbaville": [hit("FR", 45.1, 4.8)], "quellmoor": [hit("DE", 52.0, 9.0)]},
-                          fail_first={"zorbaville": [(429, {"Retry-After": "1"})],
-                                      "quellmoor": [(503, {}), (500, {})]})
+    behaviour = Behaviour(
+        answers={"zorbaville": [hit("FR", 45.1, 4.8)], "quellmoor": [hit("DE", 52.0, 9.0)]},
+        fail_first={
+            "zorbaville": [(429, {"Retry-After": "1"})],
+            "quellmoor": [(503, {}), (500, {})],
+        },
+    )
     with FixtureServer(behaviour) as server:
         adapter = adapter_file(tmp_path / "a.toml", server.url)
         src = _table(tmp_path / "in.csv", {"zorbaville": 2, "quellmoor": 1})
@@ -120,8 +158,10 @@ def test_429_with_retry_after_and_5xx_then_success(tmp_path):
         assert server.counts() == {"zorbaville": 2, "quellmoor": 3}
         rep = json.loads((tmp_path / "r.json").read_text())["remote"]
         assert rep["retries"] == 3 and rep["requests"] == 5 and rep["with_results"] == 2
-        assert {row["location"]: row["geo_country"] for row in _rows(tmp_path)} == {"Zorbaville": "FR",
-                                                                                    "Quellmoor": "DE"}
+        assert {row["location"]: row["geo_country"] for row in _rows(tmp_path)} == {
+            "Zorbaville": "FR",
+            "Quellmoor": "DE",
+        }
 
 
 def test_timeouts_are_retried(tmp_path):
@@ -137,11 +177,17 @@ def test_timeouts_are_retried(tmp_path):
 
 def test_bad_answers_are_rejected_one_by_one(tmp_path):
     behaviour = Behaviour(
-        answers={"zorbaville": [hit("ZZ", 45.1, 4.8)],                   # not an ISO code
-                 "quellmoor": [hit("DE", 95.0, 9.0), hit("DE", 52.0, 9.0)],  # first out of range, second fine
-                 "brindleford": [{"lat": 1.0, "lon": 2.0}],              # no country field
-                 "xantheport": [hit("Norway", 60.0, 10.0)]},             # an English country name
-        malformed={"vossingen"})
+        answers={
+            "zorbaville": [hit("ZZ", 45.1, 4.8)],  # not an ISO code
+            "quellmoor": [
+                hit("DE", 95.0, 9.0),
+                hit("DE", 52.0, 9.0),
+            ],  # first out of range, second fine
+            "brindleford": [{"lat": 1.0, "lon": 2.0}],  # no country field
+            "xantheport": [hit("Norway", 60.0, 10.0)],
+        },  # an English country name
+        malformed={"vossingen"},
+    )
     with FixtureServer(behaviour) as server:
         adapter = adapter_file(tmp_path / "a.toml", server.url)
         src = _table(tmp_path / "in.csv", UNKNOWN)
@@ -149,13 +195,20 @@ def test_bad_answers_are_rejected_one_by_one(tmp_path):
         assert r.exit_code == 0, r.output
         rows = {row["location"]: row for row in _rows(tmp_path)}
         assert rows["Zorbaville"]["geo_status"] == "unmatched"
-        assert (rows["Quellmoor"]["geo_country"], rows["Quellmoor"]["geo_lat"]) == ("DE", "52.00000")
+        assert (rows["Quellmoor"]["geo_country"], rows["Quellmoor"]["geo_lat"]) == (
+            "DE",
+            "52.00000",
+        )
         assert rows["Brindleford"]["geo_status"] == "unmatched"
         assert rows["Xantheport"]["geo_country"] == "NO"
         rep = json.loads((tmp_path / "r.json").read_text())["remote"]
-        assert rep["errors"] == 1 and rep["rejected_results"] == 2  # broken JSON; out-of-range + no country
+        assert (
+            rep["errors"] == 1 and rep["rejected_results"] == 2
+        )  # broken JSON; out-of-range + no country
         _clean(tmp_path, src, adapter)
-        assert server.counts() == {k: 1 for k in UNKNOWN}  # errors and no-results are not asked again
+        assert server.counts() == dict.fromkeys(
+            UNKNOWN, 1
+        )  # errors and no-results are not asked again
 
 
 def test_circuit_breaker_stops_calling(tmp_path):
@@ -166,30 +219,52 @@ def test_circuit_breaker_stops_calling(tmp_path):
         r = _clean(tmp_path, src, adapter)
         assert r.exit_code == 0, r.output
         assert sum(server.counts().values()) == 5
-        assert ("remote team-geocoder: 5 failures in a row (last: HTTP 500); stopped calling, the run goes on "
-                "offline") in r.stderr
+        assert (
+            "remote team-geocoder: 5 failures in a row (last: HTTP 500); stopped calling, the run goes on "
+            "offline"
+        ) in r.stderr
         assert "7 string(s) were not sent because the circuit breaker opened" in r.stderr
         assert len(_rows(tmp_path)) == sum(many.values())  # the run finished offline, nothing lost
 
 
 def test_agreement_raises_confidence_and_disagreement_goes_to_review(tmp_path):
-    behaviour = Behaviour(answers={"vancouver": [hit("CA", 49.25, -123.12, "Vancouver", "CA-BC", 0.95)],
-                                   "valencia": [hit("ES", 39.47, -0.38, "Valencia", "", 0.9)]})
+    behaviour = Behaviour(
+        answers={
+            "vancouver": [hit("CA", 49.25, -123.12, "Vancouver", "CA-BC", 0.95)],
+            "valencia": [hit("ES", 39.47, -0.38, "Valencia", "", 0.9)],
+        }
+    )
     with FixtureServer(behaviour):
         pass
     with FixtureServer(behaviour) as server:
         adapter = adapter_file(tmp_path / "a.toml", server.url)
         src = _table(tmp_path / "in.csv", {"vancouver": 3, "valencia": 2})
-        offline = runner.invoke(app, ["clean", str(src), "--column", "location", "--out",
-                                      str(tmp_path / "offline.csv"), "--cache", str(tmp_path / "c0.sqlite")])
+        offline = runner.invoke(
+            app,
+            [
+                "clean",
+                str(src),
+                "--column",
+                "location",
+                "--out",
+                str(tmp_path / "offline.csv"),
+                "--cache",
+                str(tmp_path / "c0.sqlite"),
+            ],
+        )
         assert offline.exit_code == 0
-        before = {r["location"]: r for r in csv.DictReader(open(tmp_path / "offline.csv", encoding="utf-8"))}
+        before = {
+            r["location"]: r
+            for r in csv.DictReader(open(tmp_path / "offline.csv", encoding="utf-8"))
+        }
         r = _clean(tmp_path, src, adapter)
         assert r.exit_code == 0, r.output
         after = {row["location"]: row for row in _rows(tmp_path)}
         assert before["Vancouver"]["geo_status"] == "review"
         assert after["Vancouver"]["geo_reason"] == "remote_agrees:team-geocoder"
-        assert float(after["Vancouver"]["geo_confidence"]) > float(before["Vancouver"]["geo_confidence"])
+        assert float(after["Vancouver"]["geo_confidence"]) > float(
+            before["Vancouver"]["geo_confidence"]
+        )
         assert after["Vancouver"]["geo_status"] == "matched"
         assert after["Valencia"]["geo_country"] == before["Valencia"]["geo_country"] == "VE"
         assert after["Valencia"]["geo_reason"] == "remote_differs:team-geocoder"
@@ -202,7 +277,9 @@ def test_the_secret_stays_secret(tmp_path):
     with FixtureServer(behaviour) as server:
         adapter = adapter_file(tmp_path / "a.toml", server.url, key=True, method="POST")
         src = _table(tmp_path / "in.csv", {"zorbaville": 2, "quellmoor": 1})
-        r = _clean(tmp_path, src, adapter, "--report", tmp_path / "r.json", env={"TEAM_GEO_KEY": secret})
+        r = _clean(
+            tmp_path, src, adapter, "--report", tmp_path / "r.json", env={"TEAM_GEO_KEY": secret}
+        )
         assert r.exit_code == 0, r.output
         assert server.requests[0]["headers"]["X-Api-Key"] == secret  # sent, as a header only
         assert _rows(tmp_path)[0]["geo_country"] == "FR"
@@ -214,11 +291,33 @@ def test_the_secret_stays_secret(tmp_path):
 def test_nothing_is_sent_without_remote(tmp_path):
     with FixtureServer() as server:
         src = _table(tmp_path / "in.csv", UNKNOWN)
-        r = runner.invoke(app, ["clean", str(src), "--column", "location", "--out", str(tmp_path / "o.csv"),
-                                "--cache", str(tmp_path / "c.sqlite")])
+        r = runner.invoke(
+            app,
+            [
+                "clean",
+                str(src),
+                "--column",
+                "location",
+                "--out",
+                str(tmp_path / "o.csv"),
+                "--cache",
+                str(tmp_path / "c.sqlite"),
+            ],
+        )
         assert r.exit_code == 0 and server.counts() == {}
-        bad = runner.invoke(app, ["clean", str(src), "--column", "location", "--out", str(tmp_path / "o.csv"),
-                                  "--budget", "3"])
+        bad = runner.invoke(
+            app,
+            [
+                "clean",
+                str(src),
+                "--column",
+                "location",
+                "--out",
+                str(tmp_path / "o.csv"),
+                "--budget",
+                "3",
+            ],
+        )
         assert bad.exit_code == 1 and "only apply with --remote" in bad.stderr
 
 
@@ -229,9 +328,24 @@ def test_kill_mid_run_then_rerun_sends_nothing_twice(tmp_path):
         adapter = adapter_file(tmp_path / "a.toml", server.url, concurrency=1)
         src = _table(tmp_path / "in.csv", many)
         cache = tmp_path / "cache.sqlite"
-        cmd = [sys.executable, "-m", "geonorm.cli", "clean", str(src), "--column", "location", "--out",
-               str(tmp_path / "out.csv"), "--cache", str(cache), "--remote", str(adapter), "--quiet",
-               "--workers", "1"]
+        cmd = [
+            sys.executable,
+            "-m",
+            "geonorm.cli",
+            "clean",
+            str(src),
+            "--column",
+            "location",
+            "--out",
+            str(tmp_path / "out.csv"),
+            "--cache",
+            str(cache),
+            "--remote",
+            str(adapter),
+            "--quiet",
+            "--workers",
+            "1",
+        ]
         proc = subprocess.Popen(cmd)
         wait_for_rows(proc, cache, "remote_answer", 10)
         assert proc.poll() is None, "the run ended before it could be interrupted"
@@ -243,5 +357,9 @@ def test_kill_mid_run_then_rerun_sends_nothing_twice(tmp_path):
         subprocess.run(cmd, check=True)
         counts = server.counts()
         assert set(counts) == set(many)
-        assert all(counts[k] == 1 for k in kept)  # what was answered before the kill is not asked again
-        assert sum(counts.values()) <= len(many) + 1  # at most the one request in flight at the kill
+        assert all(
+            counts[k] == 1 for k in kept
+        )  # what was answered before the kill is not asked again
+        assert (
+            sum(counts.values()) <= len(many) + 1
+        )  # at most the one request in flight at the kill

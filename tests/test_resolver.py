@@ -28,7 +28,12 @@ def test_places_in_several_countries_go_to_review(resolver):
 
 def test_places_in_one_country(resolver):
     r = resolver.resolve("Edinburgh & Glasgow")
-    assert (r.country, r.subdivision, r.city, r.reason) == ("GB", "GB-SCT", "", Reason.SAME_COUNTRY_PLACES)
+    assert (r.country, r.subdivision, r.city, r.reason) == (
+        "GB",
+        "GB-SCT",
+        "",
+        Reason.SAME_COUNTRY_PLACES,
+    )
 
 
 def test_world_region_has_no_country(resolver):
@@ -41,12 +46,15 @@ def test_not_a_place_kinds(resolver):
     assert resolver.resolve("n/a").reason == Reason.PLACEHOLDER
     assert resolver.resolve("localhost").reason == Reason.JUNK
     assert resolver.resolve("Middle-earth").reason == Reason.FICTIONAL
-    assert all(resolver.resolve(t).status == Status.NOT_A_PLACE for t in ("", "n/a", "localhost", "Middle-earth"))
+    assert all(
+        resolver.resolve(t).status == Status.NOT_A_PLACE
+        for t in ("", "n/a", "localhost", "Middle-earth")
+    )
 
 
 def test_flags_and_subdivision_flags(resolver):
-    assert resolver.resolve("\U0001F1E7\U0001F1F7").country == "BR"
-    wales = "\U0001F3F4" + "".join(chr(0xE0000 + ord(c)) for c in "gbwls") + "\U000E007F"
+    assert resolver.resolve("\U0001f1e7\U0001f1f7").country == "BR"
+    wales = "\U0001f3f4" + "".join(chr(0xE0000 + ord(c)) for c in "gbwls") + "\U000e007f"
     r = resolver.resolve(wales)
     assert (r.country, r.subdivision) == ("GB", "GB-WLS")
 
@@ -58,7 +66,13 @@ def test_scripts(resolver):
 
 
 def test_noise_phrases_in_several_languages(resolver):
-    for text in ("based in Berlin", "vivo en Madrid", "j'habite à Lyon", "Greater Lagos area", "wohnhaft in Hamburg"):
+    for text in (
+        "based in Berlin",
+        "vivo en Madrid",
+        "j'habite à Lyon",
+        "Greater Lagos area",
+        "wohnhaft in Hamburg",
+    ):
         r = resolver.resolve(text)
         assert r.status == Status.MATCHED, text
         assert r.city, text
@@ -92,7 +106,9 @@ def test_accept_threshold_sets_status(resolver):
     assert resolver.resolve("Frankfurt").country == "DE"
 
 
-@settings(max_examples=200, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@settings(
+    max_examples=200, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
 @given(st.text(max_size=60))
 def test_resolver_never_raises_and_is_deterministic(resolver, text):
     first = resolver.resolve(text)
@@ -101,11 +117,36 @@ def test_resolver_never_raises_and_is_deterministic(resolver, text):
     assert first.status in Status
 
 
-@settings(max_examples=100, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
-@given(st.lists(st.sampled_from(["Paris", "Berlin", ", ", " / ", "🇯🇵", "tx", "Greater", "area", "NYC", "東京",
-                                 "&", "-", "n/a", "Georgia", "CA"]), max_size=6))
+@settings(
+    max_examples=100, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    st.lists(
+        st.sampled_from(
+            [
+                "Paris",
+                "Berlin",
+                ", ",
+                " / ",
+                "🇯🇵",
+                "tx",
+                "Greater",
+                "area",
+                "NYC",
+                "東京",
+                "&",
+                "-",
+                "n/a",
+                "Georgia",
+                "CA",
+            ]
+        ),
+        max_size=6,
+    )
+)
 def test_resolver_total_on_place_like_text(resolver, words):
     r = resolver.resolve("".join(words))
     assert 0.0 <= r.confidence <= 1.0
-    assert (r.status == Status.MATCHED) == (bool(r.country) and r.confidence >= resolver.accept
-                                            and r.reason != Reason.SEVERAL_COUNTRIES)
+    assert (r.status == Status.MATCHED) == (
+        bool(r.country) and r.confidence >= resolver.accept and r.reason != Reason.SEVERAL_COUNTRIES
+    )

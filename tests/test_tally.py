@@ -13,10 +13,10 @@ from scipy.stats import chi2
 from typer.testing import CliRunner
 
 from geonorm.cli import app
-from geonorm.mapping import NO_DATA, classes, render_svg
-from geonorm.population import bundled_population, read_population
-from geonorm.stats import eb_gamma_prior, garwood, location_quotient, shrunk_rates
-from geonorm.tally import tally_file
+from geonorm.figures.mapping import NO_DATA, classes, render_svg
+from geonorm.figures.population import bundled_population, read_population
+from geonorm.figures.stats import eb_gamma_prior, garwood, location_quotient, shrunk_rates
+from geonorm.figures.tally import tally_file
 
 runner = CliRunner()
 
@@ -33,22 +33,40 @@ def test_garwood_against_a_published_table():
     # Exact 95% limits for a Poisson count as tabulated in epidemiology texts (e.g. the
     # table of exact Poisson confidence limits after Garwood 1936) — values from memory,
     # to the three decimals usually printed.
-    table = {0: (0.000, 3.689), 1: (0.0253, 5.572), 2: (0.242, 7.225), 3: (0.619, 8.767), 5: (1.623, 11.668),
-             10: (4.795, 18.390)}
+    table = {
+        0: (0.000, 3.689),
+        1: (0.0253, 5.572),
+        2: (0.242, 7.225),
+        3: (0.619, 8.767),
+        5: (1.623, 11.668),
+        10: (4.795, 18.390),
+    }
     for k, (lo, hi) in table.items():
         got = garwood(k)
         assert got[0] == pytest.approx(lo, abs=6e-4) and got[1] == pytest.approx(hi, abs=6e-4)
 
 
 def _cleaned(path, rows):
-    geo = ["geo_country", "geo_subdivision", "geo_city", "geo_lat", "geo_lon", "geo_confidence", "geo_reason",
-           "geo_status"]
+    geo = [
+        "geo_country",
+        "geo_subdivision",
+        "geo_city",
+        "geo_lat",
+        "geo_lon",
+        "geo_confidence",
+        "geo_reason",
+        "geo_status",
+    ]
     with open(path, "w", encoding="utf-8", newline="") as fh:
         w = csv.writer(fh, lineterminator="\n")
         w.writerow(["id", "kind", *geo])
         for i, (cc, status, kind) in enumerate(rows):
-            reason = {"matched": "city", "review": "ambiguous", "unmatched": "no_match",
-                      "not_a_place": "empty"}[status]
+            reason = {
+                "matched": "city",
+                "review": "ambiguous",
+                "unmatched": "no_match",
+                "not_a_place": "empty",
+            }[status]
             w.writerow([i, kind, cc, "", "", "", "", "0.9", reason, status])
     return path
 
@@ -71,25 +89,50 @@ def test_rates_adjustment_and_lq_on_a_worked_example(tmp_path):
     # LQ(FR, a) = (6/8) / (7/12) = 0.75 / 0.58333 = 1.2857; LQ(DE, b) = (3/4) / (5/12) = 1.8.
     # Interval for LQ(DE, b): sqrt(1/3 − 1/4 + 1/5 − 1/12) = sqrt(0.2) = 0.44721;
     # exp(1.96 × 0.44721) = 2.4025, so the interval is 1.8 / 2.4025 … 1.8 × 2.4025 = (0.7492, 4.3246).
-    rows = ([("FR", "matched", "a")] * 6 + [("FR", "matched", "b")] * 2 + [("DE", "matched", "a")] +
-            [("DE", "matched", "b")] * 3 + [("DE", "review", "b")] * 3 + [("", "unmatched", "a")] * 2 +
-            [("", "not_a_place", "")] * 3)
+    rows = (
+        [("FR", "matched", "a")] * 6
+        + [("FR", "matched", "b")] * 2
+        + [("DE", "matched", "a")]
+        + [("DE", "matched", "b")] * 3
+        + [("DE", "review", "b")] * 3
+        + [("", "unmatched", "a")] * 2
+        + [("", "not_a_place", "")] * 3
+    )
     cleaned = _cleaned(tmp_path / "clean.csv", rows)
     pop = _population(tmp_path / "pop.csv", [("FRA", 2_000_000), ("DEU", 4_000_000)])
     res = tally_file(cleaned, population=pop)
-    assert res.funnel == {"rows": 20, "rows_with_text": 17, "matched": 12, "review": 3, "unmatched": 2,
-                          "not_a_place": 3, "located": 12}
+    assert res.funnel == {
+        "rows": 20,
+        "rows_with_text": 17,
+        "matched": 12,
+        "review": 3,
+        "unmatched": 2,
+        "not_a_place": 3,
+        "located": 12,
+    }
     fr, de = res.rows
-    assert (fr["country"], fr["iso3"], fr["count"], fr["per_million"], fr["adjusted_per_million"]) == \
-        ("FR", "FRA", 8, 4.0, 6.6667)
+    assert (
+        fr["country"],
+        fr["iso3"],
+        fr["count"],
+        fr["per_million"],
+        fr["adjusted_per_million"],
+    ) == ("FR", "FRA", 8, 4.0, 6.6667)
     assert fr["share"] == pytest.approx(8 / 12, abs=1e-6)
     assert (de["per_million"], de["adjusted_per_million"]) == (1.0, 1.6667)
     low, high = garwood(8)
-    assert (fr["per_million_low"], fr["per_million_high"]) == (round(low / 2, 4), round(high / 2, 4))
-    by = {(r["country"], r["group"]): r for r in tally_file(cleaned, population=pop, by="kind").rows}
+    assert (fr["per_million_low"], fr["per_million_high"]) == (
+        round(low / 2, 4),
+        round(high / 2, 4),
+    )
+    by = {
+        (r["country"], r["group"]): r for r in tally_file(cleaned, population=pop, by="kind").rows
+    }
     assert by[("FR", "a")]["lq"] == 1.2857
     assert by[("DE", "b")]["lq"] == 1.8
-    assert (by[("DE", "b")]["lq_low"], by[("DE", "b")]["lq_high"]) == pytest.approx((0.7492, 4.3246), abs=1e-4)
+    assert (by[("DE", "b")]["lq_low"], by[("DE", "b")]["lq_high"]) == pytest.approx(
+        (0.7492, 4.3246), abs=1e-4
+    )
     assert by[("DE", "b")]["lq_flag"] == ""  # the interval includes 1
     with_review = tally_file(cleaned, population=pop, include_review=True)
     counts = {r["country"]: r["count"] for r in with_review.rows}
@@ -120,7 +163,7 @@ def test_shrinkage_beats_raw_rates_on_simulated_data():
                 p *= lam / k
                 s += p
         else:
-            k = max(0, round(rng.gauss(lam, lam ** 0.5)))
+            k = max(0, round(rng.gauss(lam, lam**0.5)))
         true.append(rate)
         pops.append(pop)
         counts.append(k)
@@ -153,10 +196,15 @@ def test_world_bank_layout(tmp_path):
         '"World","WLD","Population, total","SP.POP.TOTL","9000","9100","9200",\n'
         '"High income","HIC","Population, total","SP.POP.TOTL","1000","1010","1020",\n'
         '"France","FRA","Population, total","SP.POP.TOTL","600","610","620",\n'
-        '"Kosovo","XKX","Population, total","SP.POP.TOTL","17","18","19",\n', encoding="utf-8")
+        '"Kosovo","XKX","Population, total","SP.POP.TOTL","17","18","19",\n',
+        encoding="utf-8",
+    )
     latest = read_population(path)
     assert {cc: (v.population, v.year) for cc, v in latest.values.items()} == {
-        "AW": (110, "2022"), "FR": (620, "2023"), "XK": (19, "2023")}  # aggregates ignored
+        "AW": (110, "2022"),
+        "FR": (620, "2023"),
+        "XK": (19, "2023"),
+    }  # aggregates ignored
     y2021 = read_population(path, 2021)
     assert y2021.get("FR").population == 600 and y2021.get("FR").year == "2021"
     from geonorm.errors import InputError
@@ -166,23 +214,44 @@ def test_world_bank_layout(tmp_path):
 
 
 def test_tally_command_lists_countries_without_population(tmp_path):
-    cleaned = _cleaned(tmp_path / "clean.csv", [("FR", "matched", "a")] * 3 + [("NO", "matched", "b")])
+    cleaned = _cleaned(
+        tmp_path / "clean.csv", [("FR", "matched", "a")] * 3 + [("NO", "matched", "b")]
+    )
     pop = _population(tmp_path / "pop.csv", [("FRA", 1_000_000)])
     out = tmp_path / "countries.csv"
     r = runner.invoke(app, ["tally", str(cleaned), "--out", str(out), "--population", str(pop)])
     assert r.exit_code == 0, r.output
     assert "no population for: NO (rates left empty)" in r.stderr
     rows = list(csv.DictReader(open(out, encoding="utf-8")))
-    assert list(rows[0])[:15] == ["country", "iso3", "name", "count", "count_low", "count_high", "share",
-                                 "population", "population_year", "population_source", "per_million",
-                                 "per_million_low", "per_million_high", "adjusted_per_million",
-                                 "shrunk_per_million"]
+    assert list(rows[0])[:15] == [
+        "country",
+        "iso3",
+        "name",
+        "count",
+        "count_low",
+        "count_high",
+        "share",
+        "population",
+        "population_year",
+        "population_source",
+        "per_million",
+        "per_million_low",
+        "per_million_high",
+        "adjusted_per_million",
+        "shrunk_per_million",
+    ]
     assert rows[1]["country"] == "NO" and rows[1]["per_million"] == ""
     side = json.loads(out.with_suffix(".json").read_text())
-    assert side["countries_without_population"] == ["NO"] and "Garwood" in side["method"]["interval"]
-    by = runner.invoke(app, ["tally", str(cleaned), "--out", str(tmp_path / "by.csv"), "--by", "kind"])
+    assert (
+        side["countries_without_population"] == ["NO"] and "Garwood" in side["method"]["interval"]
+    )
+    by = runner.invoke(
+        app, ["tally", str(cleaned), "--out", str(tmp_path / "by.csv"), "--by", "kind"]
+    )
     assert by.exit_code == 0, by.output
-    assert {"group", "lq", "lq_low", "lq_high"} <= set(next(csv.DictReader(open(tmp_path / "by.csv"))))
+    assert {"group", "lq", "lq_low", "lq_high"} <= set(
+        next(csv.DictReader(open(tmp_path / "by.csv")))
+    )
     bad = runner.invoke(app, ["tally", str(cleaned), "--out", str(out), "--by", "nope"])
     assert bad.exit_code == 1 and bad.stderr.startswith("Error: column 'nope' is not in")
 
@@ -192,8 +261,11 @@ def test_map_fills_classes_and_marks_no_data():
     svg = render_svg(values, title="Members per million", unit="per million people")
     root = ET.fromstring(svg)
     ns = "{http://www.w3.org/2000/svg}"
-    fills = {g.get("class").split()[1].upper(): g.get("fill") for g in root.iter(f"{ns}g")
-             if (g.get("class") or "").startswith("country ")}
+    fills = {
+        g.get("class").split()[1].upper(): g.get("fill")
+        for g in root.iter(f"{ns}g")
+        if (g.get("class") or "").startswith("country ")
+    }
     cls = classes(list(values.values()))
     for cc, v in values.items():
         expected = next(c.colour for c in cls if v <= c.high)
@@ -212,6 +284,8 @@ def test_map_command_writes_self_contained_html(tmp_path):
     assert r.exit_code == 0, r.output
     page = out.read_text()
     assert page.startswith("<!DOCTYPE html>") and "<svg" in page
-    assert "http://" not in page.replace("http://www.w3.org/2000/svg", "")  # nothing fetched at render time
+    assert "http://" not in page.replace(
+        "http://www.w3.org/2000/svg", ""
+    )  # nothing fetched at render time
     bad = runner.invoke(app, ["map", str(table), "--value", "rate", "--out", str(out)])
     assert bad.exit_code == 1 and "column 'rate' is not in" in bad.stderr

@@ -21,7 +21,19 @@ import tempfile
 import time
 from pathlib import Path
 
-JUNK = ["n/a", "-", "localhost", "earth", "none", "somewhere", "the internet", "🏠", "?", "remote", "asdf"]
+JUNK = [
+    "n/a",
+    "-",
+    "localhost",
+    "earth",
+    "none",
+    "somewhere",
+    "the internet",
+    "🏠",
+    "?",
+    "remote",
+    "asdf",
+]
 
 
 def distinct_strings(n: int, rng: random.Random) -> list[str]:
@@ -57,12 +69,18 @@ def distinct_strings(n: int, rng: random.Random) -> list[str]:
             s = c["name"]
             if len(s) > 4:
                 j = rng.randrange(1, len(s) - 1)
-                s = rng.choice([s[:j] + s[j + 1:], s[:j] + s[j] + s[j:], s[:j] + s[j + 1] + s[j] + s[j + 2:]])
+                s = rng.choice(
+                    [s[:j] + s[j + 1 :], s[:j] + s[j] + s[j:], s[:j] + s[j + 1] + s[j] + s[j + 2 :]]
+                )
             add(s)
         elif kind < 0.93:
             add(f"based in {c['name']}" if rng.random() < 0.5 else f"{c['name']} area")
         else:
-            add(f"{rng.choice(JUNK)} {rng.randrange(10**6)}" if rng.random() < 0.5 else c["name"].lower() + "  ")
+            add(
+                f"{rng.choice(JUNK)} {rng.randrange(10**6)}"
+                if rng.random() < 0.5
+                else c["name"].lower() + "  "
+            )
     return out
 
 
@@ -76,9 +94,13 @@ def make_file(path: Path, rows: int, n_distinct: int, seed: int = 7) -> None:
         picks[j] = v
     import polars as pl
 
-    pl.DataFrame({"member_id": [f"M{i:08d}" for i in range(rows)],
-                  "joined": [f"20{10 + i % 15}-0{1 + i % 9}-1{i % 10}" for i in range(rows)],
-                  "location": [values[p] for p in picks]}).write_csv(path)
+    pl.DataFrame(
+        {
+            "member_id": [f"M{i:08d}" for i in range(rows)],
+            "joined": [f"20{10 + i % 15}-0{1 + i % 9}-1{i % 10}" for i in range(rows)],
+            "location": [values[p] for p in picks],
+        }
+    ).write_csv(path)
 
 
 def run(cmd: list[str]) -> tuple[float, float]:
@@ -101,18 +123,40 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as td:
         src, out, cache = Path(td) / "people.csv", Path(td) / "out.csv", Path(td) / "cache.sqlite"
         make_file(src, args.rows, args.distinct)
-        floor_code = ("import polars as pl,sys; pl.read_csv(sys.argv[1], infer_schema=False)"
-                      ".write_csv(sys.argv[2])")
+        floor_code = (
+            "import polars as pl,sys; pl.read_csv(sys.argv[1], infer_schema=False)"
+            ".write_csv(sys.argv[2])"
+        )
         floor, floor_rss = run([sys.executable, "-c", floor_code, str(src), str(out)])
-        clean = ["geonorm", "clean", str(src), "--column", "location", "--out", str(out), "--cache", str(cache),
-                 "--quiet", "--workers", str(args.workers)]
+        clean = [
+            "geonorm",
+            "clean",
+            str(src),
+            "--column",
+            "location",
+            "--out",
+            str(out),
+            "--cache",
+            str(cache),
+            "--quiet",
+            "--workers",
+            str(args.workers),
+        ]
         cold, cold_rss = run(clean)
         warm, warm_rss = run(clean)
-        result = {"rows": args.rows, "distinct": args.distinct, "workers": args.workers,
-                  "floor_s": round(floor, 2), "cold_s": round(cold, 2), "warm_s": round(warm, 2),
-                  "cold_over_floor": round(cold / floor, 1), "warm_over_floor": round(warm / floor, 2),
-                  "floor_peak_rss_mb": round(floor_rss), "cold_peak_rss_mb": round(cold_rss),
-                  "warm_peak_rss_mb": round(warm_rss)}
+        result = {
+            "rows": args.rows,
+            "distinct": args.distinct,
+            "workers": args.workers,
+            "floor_s": round(floor, 2),
+            "cold_s": round(cold, 2),
+            "warm_s": round(warm, 2),
+            "cold_over_floor": round(cold / floor, 1),
+            "warm_over_floor": round(warm / floor, 2),
+            "floor_peak_rss_mb": round(floor_rss),
+            "cold_peak_rss_mb": round(cold_rss),
+            "warm_peak_rss_mb": round(warm_rss),
+        }
         if args.big_rows:
             big = Path(td) / "big.csv"
             repeat = max(1, args.big_rows // args.rows)
@@ -126,8 +170,13 @@ def main() -> None:
             src.unlink()
             big_clean = [*clean[:2], str(big), *clean[3:]]
             t, rss = run(big_clean)
-            result.update({"big_rows": args.rows * repeat, "big_warm_s": round(t, 1),
-                           "big_peak_rss_mb": round(rss)})
+            result.update(
+                {
+                    "big_rows": args.rows * repeat,
+                    "big_warm_s": round(t, 1),
+                    "big_peak_rss_mb": round(rss),
+                }
+            )
         print(json.dumps(result, indent=1))
 
 

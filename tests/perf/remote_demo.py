@@ -20,11 +20,11 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from fixture_server import Behaviour, FixtureServer, adapter_file, hit  # noqa: E402
+from fixture_server import Behaviour, FixtureServer, adapter_file, hit
 
-from geonorm.batch import clean_file  # noqa: E402
-from geonorm.cache import Cache  # noqa: E402
-from geonorm.demo import demo_file  # noqa: E402
+from geonorm.batch.clean import clean_file
+from geonorm.batch.cache import Cache
+from geonorm.demo import demo_file
 
 
 def simple_geocoder_answers(texts: list[str]) -> dict[str, list[dict]]:
@@ -38,7 +38,9 @@ def simple_geocoder_answers(texts: list[str]) -> dict[str, list[dict]]:
     for t in texts:
         c = by_name.get(t.casefold().strip())
         if c:
-            out[t] = [hit(c["countrycode"], c["latitude"], c["longitude"], c["name"], relevance=0.85)]
+            out[t] = [
+                hit(c["countrycode"], c["latitude"], c["longitude"], c["name"], relevance=0.85)
+            ]
     return out
 
 
@@ -58,34 +60,59 @@ def main() -> None:
         clean_file(demo_file(), "location", offline, cache=Cache(td / "offline.sqlite"))
         base = statuses(offline)
         with open(offline, encoding="utf-8", newline="") as fh:
-            doubtful = sorted({row["location"].strip().casefold() for row in csv.DictReader(fh)
-                               if row["geo_status"] in ("review", "unmatched")})
+            doubtful = sorted(
+                {
+                    row["location"].strip().casefold()
+                    for row in csv.DictReader(fh)
+                    if row["geo_status"] in ("review", "unmatched")
+                }
+            )
         answers = simple_geocoder_answers(doubtful)
         scenarios = {
             "clean service": Behaviour(answers=answers),
             "429 with Retry-After on every 3rd string": Behaviour(
-                answers=answers, fail_first={t: [(429, {"Retry-After": "1"})] for t in doubtful[::3]}),
+                answers=answers,
+                fail_first={t: [(429, {"Retry-After": "1"})] for t in doubtful[::3]},
+            ),
             "5xx twice, then success": Behaviour(
-                answers=answers, fail_first={t: [(503, {}), (500, {})] for t in doubtful}),
-            "malformed JSON for every 2nd string": Behaviour(answers=answers, malformed=set(doubtful[::2])),
+                answers=answers, fail_first={t: [(503, {}), (500, {})] for t in doubtful}
+            ),
+            "malformed JSON for every 2nd string": Behaviour(
+                answers=answers, malformed=set(doubtful[::2])
+            ),
             "service down (always 500)": Behaviour(answers=answers, always=500),
         }
         for name, behaviour in scenarios.items():
             with FixtureServer(behaviour) as server:
                 adapter = adapter_file(td / "team.toml", server.url, per_second=50, retries=3)
                 out = td / "remote.csv"
-                summary = clean_file(demo_file(), "location", out, cache=Cache(td / f"{len(result)}.sqlite"),
-                                     remote=str(adapter), budget=args.budget)
+                summary = clean_file(
+                    demo_file(),
+                    "location",
+                    out,
+                    cache=Cache(td / f"{len(result)}.sqlite"),
+                    remote=str(adapter),
+                    budget=args.budget,
+                )
                 after = statuses(out)
                 r = summary.remote
                 newly = after["matched"] - base["matched"]
                 result[name] = {
-                    "budget": args.budget, "requests": r["requests"], "strings_answered": r["answered"],
-                    "with_results": r["with_results"], "errors": r["errors"], "retries": r["retries"],
-                    "rejected_results": r["rejected_results"], "breaker_open": r["breaker_open"],
-                    "strings_changed": r["strings_changed"], "rows_newly_matched": newly,
-                    "rows_newly_matched_per_request": round(newly / r["requests"], 2) if r["requests"] else 0.0,
-                    "messages": r["messages"], "seconds": summary.seconds,
+                    "budget": args.budget,
+                    "requests": r["requests"],
+                    "strings_answered": r["answered"],
+                    "with_results": r["with_results"],
+                    "errors": r["errors"],
+                    "retries": r["retries"],
+                    "rejected_results": r["rejected_results"],
+                    "breaker_open": r["breaker_open"],
+                    "strings_changed": r["strings_changed"],
+                    "rows_newly_matched": newly,
+                    "rows_newly_matched_per_request": round(newly / r["requests"], 2)
+                    if r["requests"]
+                    else 0.0,
+                    "messages": r["messages"],
+                    "seconds": summary.seconds,
                 }
     print(json.dumps({"offline_status": dict(base), "scenarios": result}, indent=1))
 

@@ -33,15 +33,24 @@ from typing import Any, Protocol
 
 import httpx
 
-from .errors import GeonormError
+from ..errors import GeonormError
 
 if sys.version_info >= (3, 11):
     import tomllib
 else:  # pragma: no cover
     import tomli as tomllib
 
-__all__ = ["RemoteAdapter", "TomlAdapter", "RemoteHit", "RemoteAnswer", "RemoteSummary", "load_adapter",
-           "run_remote", "RemoteError", "BREAKER_AFTER"]
+__all__ = [
+    "BREAKER_AFTER",
+    "RemoteAdapter",
+    "RemoteAnswer",
+    "RemoteError",
+    "RemoteHit",
+    "RemoteSummary",
+    "TomlAdapter",
+    "load_adapter",
+    "run_remote",
+]
 
 BREAKER_AFTER = 5  # consecutive failed strings before the circuit breaker opens
 MAX_RETRY_AFTER = 60.0
@@ -53,7 +62,7 @@ class RemoteError(GeonormError):
 
 @dataclass(frozen=True)
 class RemoteHit:
-    country: str               # as the service wrote it (alpha-2, alpha-3 or an English name)
+    country: str  # as the service wrote it (alpha-2, alpha-3 or an English name)
     lat: float | None = None
     lon: float | None = None
     city: str = ""
@@ -63,10 +72,10 @@ class RemoteHit:
 
 @dataclass
 class RemoteAnswer:
-    status: str                # ok | no_result | error (permanent)
+    status: str  # ok | no_result | error (permanent)
     hits: list[RemoteHit] = field(default_factory=list)
     error: str = ""
-    rejected: int = 0          # results dropped as malformed
+    rejected: int = 0  # results dropped as malformed
 
 
 class RemoteAdapter(Protocol):
@@ -85,12 +94,30 @@ class RemoteAdapter(Protocol):
 
 # -- the TOML adapter -----------------------------------------------------
 _KEYS: dict[str, dict[str, tuple[type | tuple[type, ...], bool]]] = {
-    "remote": {"name": (str, True), "url": (str, True), "method": (str, True), "query_param": (str, True),
-               "params": (dict, False), "key_env": (str, False), "key_header": (str, False)},
-    "remote.response": {"results": (str, True), "country": (str, True), "lat": (str, True), "lon": (str, True),
-                        "city": (str, False), "subdivision": (str, False), "score": (str, False)},
-    "remote.limits": {"per_second": ((int, float), True), "concurrency": (int, True),
-                      "timeout_s": ((int, float), True), "retries": (int, True)},
+    "remote": {
+        "name": (str, True),
+        "url": (str, True),
+        "method": (str, True),
+        "query_param": (str, True),
+        "params": (dict, False),
+        "key_env": (str, False),
+        "key_header": (str, False),
+    },
+    "remote.response": {
+        "results": (str, True),
+        "country": (str, True),
+        "lat": (str, True),
+        "lon": (str, True),
+        "city": (str, False),
+        "subdivision": (str, False),
+        "score": (str, False),
+    },
+    "remote.limits": {
+        "per_second": ((int, float), True),
+        "concurrency": (int, True),
+        "timeout_s": ((int, float), True),
+        "retries": (int, True),
+    },
 }
 
 
@@ -131,41 +158,58 @@ class TomlAdapter:
         try:
             text = path.read_text(encoding="utf-8")
         except OSError as exc:
-            raise RemoteError(f"cannot read the remote adapter file {path} ({exc.strerror})",
-                              hint="pass the path of a TOML adapter file with --remote") from exc
+            raise RemoteError(
+                f"cannot read the remote adapter file {path} ({exc.strerror})",
+                hint="pass the path of a TOML adapter file with --remote",
+            ) from exc
         try:
             data = tomllib.loads(text)
         except tomllib.TOMLDecodeError as exc:
-            raise RemoteError(f"{path} is not valid TOML: {exc}",
-                              hint="fix the line named above; see the README for the adapter format") from exc
+            raise RemoteError(
+                f"{path} is not valid TOML: {exc}",
+                hint="fix the line named above; see the README for the adapter format",
+            ) from exc
         self.path = path
         sections = {"remote": data.get("remote")}
         if not isinstance(sections["remote"], dict):
-            raise RemoteError(f"{path} has no [remote] table (line 1)",
-                              hint="start the file with [remote]; see the README for the adapter format")
+            raise RemoteError(
+                f"{path} has no [remote] table (line 1)",
+                hint="start the file with [remote]; see the README for the adapter format",
+            )
         sections["remote.response"] = sections["remote"].get("response")
         sections["remote.limits"] = sections["remote"].get("limits")
         for name, spec in _KEYS.items():
             table = sections[name]
             if not isinstance(table, dict):
-                raise RemoteError(f"{path} has no [{name}] table (line {_key_line(text, 'remote', None) or 1})",
-                                  hint=f"add a [{name}] table; see the README for its keys")
+                raise RemoteError(
+                    f"{path} has no [{name}] table (line {_key_line(text, 'remote', None) or 1})",
+                    hint=f"add a [{name}] table; see the README for its keys",
+                )
             for key, value in table.items():
                 if name == "remote" and key in ("response", "limits"):
                     continue
                 if key not in spec:
-                    raise RemoteError(f"{path} line {_key_line(text, name, key)}: unknown key {key!r} in [{name}]",
-                                      hint=f"the keys of [{name}] are: {', '.join(spec)}")
+                    raise RemoteError(
+                        f"{path} line {_key_line(text, name, key)}: unknown key {key!r} in [{name}]",
+                        hint=f"the keys of [{name}] are: {', '.join(spec)}",
+                    )
                 types, _ = spec[key]
                 if not isinstance(value, types) or isinstance(value, bool):
-                    want = {str: "string", int: "whole number", dict: "table"}.get(types, "number") \
-                        if isinstance(types, type) else "number"
-                    raise RemoteError(f"{path} line {_key_line(text, name, key)}: {key} must be a {want}",
-                                      hint="see the README for the adapter format")
+                    want = (
+                        {str: "string", int: "whole number", dict: "table"}.get(types, "number")
+                        if isinstance(types, type)
+                        else "number"
+                    )
+                    raise RemoteError(
+                        f"{path} line {_key_line(text, name, key)}: {key} must be a {want}",
+                        hint="see the README for the adapter format",
+                    )
             for key, (_, required) in spec.items():
                 if required and key not in table:
-                    raise RemoteError(f"{path} line {_key_line(text, name, None)}: [{name}] lacks {key!r}",
-                                      hint=f"add {key} = … to [{name}]")
+                    raise RemoteError(
+                        f"{path} line {_key_line(text, name, None)}: [{name}] lacks {key!r}",
+                        hint=f"add {key} = … to [{name}]",
+                    )
         r: dict = sections["remote"]
         resp: dict = sections["remote.response"]  # type: ignore[assignment]  # checked above
         lim: dict = sections["remote.limits"]  # type: ignore[assignment]
@@ -176,19 +220,40 @@ class TomlAdapter:
         if not r["name"].strip():
             raise bad("remote", "name", "name is empty", "give the service a short label")
         if not re.match(r"^https?://[^\s/]+", r["url"]):
-            raise bad("remote", "url", f"url {r['url']!r} is not an http(s) URL", "write https://host/path")
+            raise bad(
+                "remote",
+                "url",
+                f"url {r['url']!r} is not an http(s) URL",
+                "write https://host/path",
+            )
         if r["method"].upper() not in ("GET", "POST"):
-            raise bad("remote", "method", f"method must be GET or POST, not {r['method']!r}", "use GET or POST")
+            raise bad(
+                "remote",
+                "method",
+                f"method must be GET or POST, not {r['method']!r}",
+                "use GET or POST",
+            )
         if ("key_env" in r) != ("key_header" in r):
             key = "key_env" if "key_env" in r else "key_header"
-            raise bad("remote", key, "key_env and key_header go together",
-                      "give both (the variable holding the secret, and the header to send it in) or neither")
+            raise bad(
+                "remote",
+                key,
+                "key_env and key_header go together",
+                "give both (the variable holding the secret, and the header to send it in) or neither",
+            )
         for key in ("per_second", "timeout_s"):
             if lim[key] <= 0:
-                raise bad("remote.limits", key, f"{key} must be above 0", f"set {key} to a positive number")
+                raise bad(
+                    "remote.limits",
+                    key,
+                    f"{key} must be above 0",
+                    f"set {key} to a positive number",
+                )
         if lim["concurrency"] < 1 or lim["retries"] < 0:
             key = "concurrency" if lim["concurrency"] < 1 else "retries"
-            raise bad("remote.limits", key, f"{key} is out of range", "concurrency ≥ 1, retries ≥ 0")
+            raise bad(
+                "remote.limits", key, f"{key} is out of range", "concurrency ≥ 1, retries ≥ 0"
+            )
         self.name = r["name"].strip()
         self.url, self.method, self.query_param = r["url"], r["method"].upper(), r["query_param"]
         self.params = {str(k): str(v) for k, v in (r.get("params") or {}).items()}
@@ -200,16 +265,30 @@ class TomlAdapter:
             env = os.environ if environ is None else environ
             secret = env.get(r["key_env"])
             if not secret:
-                raise bad("remote", "key_env", f"the environment variable {r['key_env']} is not set",
-                          f"export {r['key_env']}=… with your key before running")
+                raise bad(
+                    "remote",
+                    "key_env",
+                    f"the environment variable {r['key_env']} is not set",
+                    f"export {r['key_env']}=… with your key before running",
+                )
             self._headers[r["key_header"]] = secret
 
     def request(self, client: httpx.Client, text: str) -> httpx.Request:
         if self.method == "GET":
-            return client.build_request("GET", self.url, params={**self.params, self.query_param: text},
-                                        headers=self._headers, timeout=self.timeout_s)
-        return client.build_request("POST", self.url, json={**self.params, self.query_param: text},
-                                    headers=self._headers, timeout=self.timeout_s)
+            return client.build_request(
+                "GET",
+                self.url,
+                params={**self.params, self.query_param: text},
+                headers=self._headers,
+                timeout=self.timeout_s,
+            )
+        return client.build_request(
+            "POST",
+            self.url,
+            json={**self.params, self.query_param: text},
+            headers=self._headers,
+            timeout=self.timeout_s,
+        )
 
     def parse(self, response: httpx.Response) -> RemoteAnswer:
         try:
@@ -242,7 +321,9 @@ class TomlAdapter:
             lon = float(lon) if lon is not None else None
         except (TypeError, ValueError):
             return None
-        if lat is not None and not (-90 <= lat <= 90) or lon is not None and not (-180 <= lon <= 180):
+        if (lat is not None and not (-90 <= lat <= 90)) or (
+            lon is not None and not (-180 <= lon <= 180)
+        ):
             return None
         if lat is not None and (math.isnan(lat) or math.isnan(lon or 0.0)):
             return None
@@ -253,8 +334,14 @@ class TomlAdapter:
             score = None
         city = _dig(item, paths["city"]) if paths["city"] else ""
         sub = _dig(item, paths["subdivision"]) if paths["subdivision"] else ""
-        return RemoteHit(country.strip(), lat, lon, city if isinstance(city, str) else "",
-                         sub if isinstance(sub, str) else "", score)
+        return RemoteHit(
+            country.strip(),
+            lat,
+            lon,
+            city if isinstance(city, str) else "",
+            sub if isinstance(sub, str) else "",
+            score,
+        )
 
 
 def load_adapter(spec: str, environ: Mapping[str, str] | None = None) -> RemoteAdapter:
@@ -265,8 +352,11 @@ def load_adapter(spec: str, environ: Mapping[str, str] | None = None) -> RemoteA
 
     found = [ep for ep in entry_points(group="geonorm.remote") if ep.name == spec]
     if not found:
-        raise RemoteError(f"no remote adapter {spec!r}: not a file, and no 'geonorm.remote' entry point has "
-                          "that name", hint="pass the path of a TOML adapter file, or install the adapter package")
+        raise RemoteError(
+            f"no remote adapter {spec!r}: not a file, and no 'geonorm.remote' entry point has "
+            "that name",
+            hint="pass the path of a TOML adapter file, or install the adapter package",
+        )
     return found[0].load()()
 
 
@@ -323,10 +413,20 @@ def _retry_after(response: httpx.Response) -> float | None:
         return min(max(when.timestamp() - time.time(), 0.0), MAX_RETRY_AFTER) if when else None
 
 
-def run_remote(adapter: RemoteAdapter, wanted: Iterable[tuple[str, int]], cache, *, budget: int | None = None,
-               budget_total: int | None = None, refresh: bool = False, dry_run: bool = False,
-               transport: httpx.BaseTransport | None = None, breaker_after: int = BREAKER_AFTER,
-               backoff: float = 0.5, sleep: Callable[[float], None] = time.sleep) -> RemoteSummary:
+def run_remote(
+    adapter: RemoteAdapter,
+    wanted: Iterable[tuple[str, int]],
+    cache,
+    *,
+    budget: int | None = None,
+    budget_total: int | None = None,
+    refresh: bool = False,
+    dry_run: bool = False,
+    transport: httpx.BaseTransport | None = None,
+    breaker_after: int = BREAKER_AFTER,
+    backoff: float = 0.5,
+    sleep: Callable[[float], None] = time.sleep,
+) -> RemoteSummary:
     """Ask the service about ``wanted`` (key, rows) pairs, most rows first, within the budgets."""
     summary = RemoteSummary(provider=adapter.name)
     order = sorted(wanted, key=lambda kv: (-kv[1], kv[0]))
@@ -370,7 +470,9 @@ def run_remote(adapter: RemoteAdapter, wanted: Iterable[tuple[str, int]], cache,
                 if response.status_code == 429 or response.status_code >= 500:
                     problem, wait_s = f"HTTP {response.status_code}", _retry_after(response)
                 elif response.status_code >= 400:
-                    return RemoteAnswer("error", error=f"HTTP {response.status_code} (not retried)"), attempt + 1
+                    return RemoteAnswer(
+                        "error", error=f"HTTP {response.status_code} (not retried)"
+                    ), attempt + 1
                 else:
                     return adapter.parse(response), attempt + 1
             if attempt >= adapter.retries:
@@ -378,7 +480,11 @@ def run_remote(adapter: RemoteAdapter, wanted: Iterable[tuple[str, int]], cache,
             attempt += 1
             with lock:
                 summary.retries += 1
-            delay = wait_s if wait_s is not None else backoff * 2 ** (attempt - 1) * (0.5 + random.random())
+            delay = (
+                wait_s
+                if wait_s is not None
+                else backoff * 2 ** (attempt - 1) * (0.5 + random.random())
+            )
             sleep(delay)
 
     def finish(key: str, answer: RemoteAnswer | None, sent: int) -> None:
@@ -392,8 +498,10 @@ def run_remote(adapter: RemoteAdapter, wanted: Iterable[tuple[str, int]], cache,
                 state["failures_in_a_row"] += 1
                 if state["failures_in_a_row"] >= breaker_after and not summary.breaker_open:
                     summary.breaker_open = True
-                    summary.messages.append(f"{adapter.name}: {breaker_after} failures in a row "
-                                            f"(last: {answer.error}); stopped calling, the run goes on offline")
+                    summary.messages.append(
+                        f"{adapter.name}: {breaker_after} failures in a row "
+                        f"(last: {answer.error}); stopped calling, the run goes on offline"
+                    )
                 return  # not cached: a later run may try again
             state["failures_in_a_row"] = 0
             summary.answered += 1
@@ -406,13 +514,21 @@ def run_remote(adapter: RemoteAdapter, wanted: Iterable[tuple[str, int]], cache,
                 summary.errors += 1
         cache.put_remote_answer(adapter.name, key, answer, sent)
 
-    with httpx.Client(transport=transport, timeout=adapter.timeout_s, follow_redirects=True) as client, \
-            ThreadPoolExecutor(max_workers=adapter.concurrency) as pool:
+    with (
+        httpx.Client(
+            transport=transport, timeout=adapter.timeout_s, follow_redirects=True
+        ) as client,
+        ThreadPoolExecutor(max_workers=adapter.concurrency) as pool,
+    ):
         queue = list(summary.planned)
         running: dict[Future, str] = {}
         while queue or running:
-            while queue and len(running) < adapter.concurrency and not summary.breaker_open \
-                    and state["left"] >= 1:
+            while (
+                queue
+                and len(running) < adapter.concurrency
+                and not summary.breaker_open
+                and state["left"] >= 1
+            ):
                 key, _ = queue.pop(0)
                 running[pool.submit(ask, client, key)] = key
             if not running:
@@ -424,29 +540,47 @@ def run_remote(adapter: RemoteAdapter, wanted: Iterable[tuple[str, int]], cache,
         summary.budget_left = int(state["left"])
     unsent = len(summary.planned) - summary.answered - summary.errors
     if summary.breaker_open and unsent > 0:
-        summary.messages.append(f"{unsent} string(s) were not sent because the circuit breaker opened")
+        summary.messages.append(
+            f"{unsent} string(s) were not sent because the circuit breaker opened"
+        )
     return summary
 
 
 def remote_value(hit: RemoteHit) -> dict[str, Any]:
-    return {"country": hit.country, "lat": hit.lat, "lon": hit.lon, "city": hit.city,
-            "subdivision": hit.subdivision, "score": hit.score}
+    return {
+        "country": hit.country,
+        "lat": hit.lat,
+        "lon": hit.lon,
+        "city": hit.city,
+        "subdivision": hit.subdivision,
+        "score": hit.score,
+    }
 
 
 def answer_to_json(answer: RemoteAnswer) -> str:
-    return json.dumps({"hits": [remote_value(h) for h in answer.hits], "error": answer.error,
-                       "rejected": answer.rejected}, ensure_ascii=False)
+    return json.dumps(
+        {
+            "hits": [remote_value(h) for h in answer.hits],
+            "error": answer.error,
+            "rejected": answer.rejected,
+        },
+        ensure_ascii=False,
+    )
 
 
 def answer_from_json(status: str, text: str) -> RemoteAnswer:
     data = json.loads(text)
-    return RemoteAnswer(status, [RemoteHit(**h) for h in data["hits"]], data.get("error", ""),
-                        data.get("rejected", 0))
+    return RemoteAnswer(
+        status,
+        [RemoteHit(**h) for h in data["hits"]],
+        data.get("error", ""),
+        data.get("rejected", 0),
+    )
 
 
 # -- merging an answer with the offline resolution -------------------------
-REMOTE_TRUST = 0.8      # trust in a result that carries no score of its own
-REMOTE_ALONE = 0.85     # a single unverified source: its trust is discounted
+REMOTE_TRUST = 0.8  # trust in a result that carries no score of its own
+REMOTE_ALONE = 0.85  # a single unverified source: its trust is discounted
 
 
 def _country_code(index, value: str) -> str:
@@ -457,13 +591,20 @@ def _country_code(index, value: str) -> str:
         up = code.upper()
         if up == "XK" or up == "XKX":
             return "XK"
-        c = pycountry.countries.get(alpha_2=up) if len(up) == 2 else pycountry.countries.get(alpha_3=up)
+        c = (
+            pycountry.countries.get(alpha_2=up)
+            if len(up) == 2
+            else pycountry.countries.get(alpha_3=up)
+        )
         if c:
             return c.alpha_2
-    from .normalize import fold
+    from ..resolve.normalize import fold
 
-    names = {h.place.cc for h in index.lookup(fold(code)) if h.place.kind == "country"
-             and h.origin in ("name", "alias", "translation")}
+    names = {
+        h.place.cc
+        for h in index.lookup(fold(code))
+        if h.place.kind == "country" and h.origin in ("name", "alias", "translation")
+    }
     return names.pop() if len(names) == 1 else ""
 
 
@@ -472,7 +613,7 @@ def validated_hit(index, hit: RemoteHit) -> dict | None:
     cc = _country_code(index, hit.country)
     if not cc:
         return None
-    from .normalize import fold
+    from ..resolve.normalize import fold
 
     sub = ""
     if hit.subdivision:
@@ -481,20 +622,33 @@ def validated_hit(index, hit: RemoteHit) -> dict | None:
         if place is not None and place.cc == cc:
             sub = code
         else:
-            subs = {h.place.sub for h in index.lookup(fold(hit.subdivision))
-                    if h.place.kind == "subdivision" and h.place.cc == cc}
+            subs = {
+                h.place.sub
+                for h in index.lookup(fold(hit.subdivision))
+                if h.place.kind == "subdivision" and h.place.cc == cc
+            }
             sub = subs.pop() if len(subs) == 1 else ""
     lat, lon, city, gid = hit.lat, hit.lon, hit.city.strip(), None
     if city:
-        places = [h.place for h in index.lookup(fold(city)) if h.place.kind == "city" and h.place.cc == cc
-                  and (not sub or h.place.sub == sub)]
+        places = [
+            h.place
+            for h in index.lookup(fold(city))
+            if h.place.kind == "city" and h.place.cc == cc and (not sub or h.place.sub == sub)
+        ]
         if places:
             best = max(places, key=lambda p: p.pop)
             gid, sub = best.gid, sub or best.sub
             if lat is None or lon is None:
                 lat, lon = best.lat, best.lon
-    return {"country": cc, "subdivision": sub, "city": city, "lat": lat, "lon": lon, "geonameid": gid,
-            "trust": hit.score if hit.score is not None else REMOTE_TRUST}
+    return {
+        "country": cc,
+        "subdivision": sub,
+        "city": city,
+        "lat": lat,
+        "lon": lon,
+        "geonameid": gid,
+        "trust": hit.score if hit.score is not None else REMOTE_TRUST,
+    }
 
 
 def merge(res, answer: RemoteAnswer, provider: str, index, accept: float):
@@ -506,27 +660,56 @@ def merge(res, answer: RemoteAnswer, provider: str, index, accept: float):
     """
     from dataclasses import replace as dc_replace
 
-    from .resolution import Candidate, Reason, Status
+    from ..resolve.resolution import Candidate, Reason, Status
 
     hits = [h for h in (validated_hit(index, h) for h in answer.hits) if h is not None]
     if answer.status != "ok" or not hits:
         return res
     top = hits[0]
-    remote = Candidate(top["country"], top["subdivision"], top["city"], top["lat"], top["lon"], round(top["trust"], 4))
+    remote = Candidate(
+        top["country"],
+        top["subdivision"],
+        top["city"],
+        top["lat"],
+        top["lon"],
+        round(top["trust"], 4),
+    )
     if res.country == top["country"]:
         conf = 1 - (1 - res.confidence) * (1 - top["trust"])
-        new = dc_replace(res, reason=Reason.REMOTE_AGREES, source=provider, confidence=round(conf, 4))
+        new = dc_replace(
+            res, reason=Reason.REMOTE_AGREES, source=provider, confidence=round(conf, 4)
+        )
         if not new.city and top["city"]:
-            new.city, new.lat, new.lon, new.geonameid = top["city"], top["lat"], top["lon"], top["geonameid"]
+            new.city, new.lat, new.lon, new.geonameid = (
+                top["city"],
+                top["lat"],
+                top["lon"],
+                top["geonameid"],
+            )
             new.subdivision = new.subdivision or top["subdivision"]
         new.status = Status.MATCHED if conf >= accept else Status.REVIEW
         return new
     if res.country:
-        return dc_replace(res, reason=Reason.REMOTE_DIFFERS, source=provider, status=Status.REVIEW,
-                          candidates=[*res.candidates[:1], remote])
+        return dc_replace(
+            res,
+            reason=Reason.REMOTE_DIFFERS,
+            source=provider,
+            status=Status.REVIEW,
+            candidates=[*res.candidates[:1], remote],
+        )
     conf = round(top["trust"] * REMOTE_ALONE, 4)
-    return dc_replace(res, country=top["country"], subdivision=top["subdivision"], city=top["city"],
-                      lat=top["lat"], lon=top["lon"], geonameid=top["geonameid"], confidence=conf,
-                      reason=Reason.REMOTE_FOUND, source=provider, candidates=[remote],
-                      evidence={top["country"]: 1.0},
-                      status=Status.MATCHED if conf >= accept else Status.REVIEW)
+    return dc_replace(
+        res,
+        country=top["country"],
+        subdivision=top["subdivision"],
+        city=top["city"],
+        lat=top["lat"],
+        lon=top["lon"],
+        geonameid=top["geonameid"],
+        confidence=conf,
+        reason=Reason.REMOTE_FOUND,
+        source=provider,
+        candidates=[remote],
+        evidence={top["country"]: 1.0},
+        status=Status.MATCHED if conf >= accept else Status.REVIEW,
+    )

@@ -9,7 +9,7 @@ parameters live in ``calibration.json`` next
 to this module and were fitted on the project's labelled development set;
 refit with
 
-    python -m geonorm.calibration LABELLED.csv --column text --truth country
+    python -m geonorm.resolve.calibration LABELLED.csv --column text --truth country
 """
 
 from __future__ import annotations
@@ -20,7 +20,13 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-__all__ = ["Calibration", "load_calibration", "fit_platt", "reliability", "expected_calibration_error"]
+__all__ = [
+    "Calibration",
+    "expected_calibration_error",
+    "fit_platt",
+    "load_calibration",
+    "reliability",
+]
 
 _PATH = Path(__file__).with_name("calibration.json")
 
@@ -76,8 +82,12 @@ def load_calibration(path: Path = _PATH) -> Calibration:
     return Calibration(**json.loads(path.read_text(encoding="utf-8")))
 
 
-def fit_platt(scores: Sequence[float], correct: Sequence[bool], l2: float = 0.01,
-              centre: tuple[float, float] = (1.0, 0.0)) -> tuple[float, float]:
+def fit_platt(
+    scores: Sequence[float],
+    correct: Sequence[bool],
+    l2: float = 0.01,
+    centre: tuple[float, float] = (1.0, 0.0),
+) -> tuple[float, float]:
     """Fit p = sigmoid(a * logit(s) + b) by Newton's method on the log loss.
 
     A ridge of strength ``l2`` pulls (a, b) towards ``centre``.
@@ -110,9 +120,14 @@ def fit_platt(scores: Sequence[float], correct: Sequence[bool], l2: float = 0.01
     return a, b
 
 
-def reliability(confidences: Sequence[float], correct: Sequence[bool], bins: int = 10) -> list[dict]:
+def reliability(
+    confidences: Sequence[float], correct: Sequence[bool], bins: int = 10
+) -> list[dict]:
     """Equal-width reliability table: per bin the count, mean confidence and accuracy."""
-    table = [{"low": i / bins, "high": (i + 1) / bins, "n": 0, "conf_sum": 0.0, "right": 0} for i in range(bins)]
+    table = [
+        {"low": i / bins, "high": (i + 1) / bins, "n": 0, "conf_sum": 0.0, "right": 0}
+        for i in range(bins)
+    ]
     for c, ok in zip(confidences, correct):
         c = min(max(c, 0.0), 1.0)
         row = table[min(int(c * bins), bins - 1)]
@@ -122,13 +137,20 @@ def reliability(confidences: Sequence[float], correct: Sequence[bool], bins: int
     out = []
     for row in table:
         n = row["n"]
-        out.append({"bin": f"{row['low']:.1f}-{row['high']:.1f}", "n": n,
-                    "mean_confidence": round(row["conf_sum"] / n, 4) if n else None,
-                    "accuracy": round(row["right"] / n, 4) if n else None})
+        out.append(
+            {
+                "bin": f"{row['low']:.1f}-{row['high']:.1f}",
+                "n": n,
+                "mean_confidence": round(row["conf_sum"] / n, 4) if n else None,
+                "accuracy": round(row["right"] / n, 4) if n else None,
+            }
+        )
     return out
 
 
-def expected_calibration_error(confidences: Sequence[float], correct: Sequence[bool], bins: int = 10) -> float:
+def expected_calibration_error(
+    confidences: Sequence[float], correct: Sequence[bool], bins: int = 10
+) -> float:
     """ECE: bin-weighted mean |accuracy − mean confidence| (Naeini et al. 2015, equal-width bins)."""
     n = len(confidences)
     if not n:
@@ -141,7 +163,9 @@ def expected_calibration_error(confidences: Sequence[float], correct: Sequence[b
 
 
 def _log_loss(probs: Sequence[float], correct: Sequence[bool]) -> float:
-    return -sum(math.log(max(1e-6, p if y else 1 - p)) for p, y in zip(probs, correct)) / max(1, len(probs))
+    return -sum(math.log(max(1e-6, p if y else 1 - p)) for p, y in zip(probs, correct)) / max(
+        1, len(probs)
+    )
 
 
 def _fit_curves(scores, correct, reasons, method: str, shrink: float) -> Calibration:
@@ -154,13 +178,20 @@ def _fit_curves(scores, correct, reasons, method: str, shrink: float) -> Calibra
         for i, reason in enumerate(reasons):
             groups.setdefault(reason, []).append(i)
         for reason, idx in sorted(groups.items()):
-            ra, rb = fit_platt([scores[i] for i in idx], [correct[i] for i in idx], l2=shrink, centre=(a, b))
+            ra, rb = fit_platt(
+                [scores[i] for i in idx], [correct[i] for i in idx], l2=shrink, centre=(a, b)
+            )
             by_reason[reason] = [round(ra, 4), round(rb, 4)]
     return Calibration(a=round(a, 4), b=round(b, 4), by_reason=by_reason, method=method)
 
 
-def fit(results: dict, labelled: Sequence[tuple[str, str]], name: str = "", shrink: float = 4.0,
-        folds: int = 5) -> Calibration:
+def fit(
+    results: dict,
+    labelled: Sequence[tuple[str, str]],
+    name: str = "",
+    shrink: float = 4.0,
+    folds: int = 5,
+) -> Calibration:
     """Choose and fit the confidence mapping on labelled rows.
 
     Three candidates: the evidence score as it is (identity), one Platt curve,
@@ -187,8 +218,13 @@ def fit(results: dict, labelled: Sequence[tuple[str, str]], name: str = "", shri
         for f in range(folds):
             test = set(order[f::folds])
             train = [i for i in order if i not in test]
-            cal = _fit_curves([scores[i] for i in train], [correct[i] for i in train],
-                              [reasons[i] for i in train], method, shrink)
+            cal = _fit_curves(
+                [scores[i] for i in train],
+                [correct[i] for i in train],
+                [reasons[i] for i in train],
+                method,
+                shrink,
+            )
             for i in test:
                 held[i] = cal.apply(scores[i], reasons[i])
         cv[method] = (_log_loss(held, correct), expected_calibration_error(held, correct))
@@ -196,8 +232,12 @@ def fit(results: dict, labelled: Sequence[tuple[str, str]], name: str = "", shri
     cal = _fit_curves(scores, correct, reasons, best, shrink)
     cal.fitted_on, cal.n = name, len(scores)
     cal.ece_before = expected_calibration_error(scores, correct)
-    cal.ece_after = expected_calibration_error([cal.apply(s, r) for s, r in zip(scores, reasons)], correct)
-    cal.cross_validation = {m: {"log_loss": round(v[0], 4), "ece": round(v[1], 4)} for m, v in cv.items()}
+    cal.ece_after = expected_calibration_error(
+        [cal.apply(s, r) for s, r in zip(scores, reasons)], correct
+    )
+    cal.cross_validation = {
+        m: {"log_loss": round(v[0], 4), "ece": round(v[1], 4)} for m, v in cv.items()
+    }
     return cal
 
 
@@ -218,7 +258,9 @@ def main(argv: Sequence[str] | None = None) -> None:
     resolver = Resolver(calibration=Calibration())
     texts = [r[args.column] for r in rows]
     results = resolver.resolve_many(texts)
-    cal = fit(results, [(r[args.column], r[args.truth]) for r in rows], name=Path(args.labelled).name)
+    cal = fit(
+        results, [(r[args.column], r[args.truth]) for r in rows], name=Path(args.labelled).name
+    )
     cal.save(Path(args.out))
     print(json.dumps(asdict(cal), indent=2))
 

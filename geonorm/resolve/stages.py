@@ -19,29 +19,204 @@ from rapidfuzz.distance import OSA
 from .index import NameHit, Place, PlaceIndex
 from .normalize import Part, Query
 
-__all__ = ["Mention", "Reading", "Segmenter", "NotAPlaceStage", "FlagStage", "PostcodeStage",
-           "CountryStage", "SubdivisionStage", "CityStage", "FuzzyStage", "STOPWORDS"]
+__all__ = [
+    "STOPWORDS",
+    "CityStage",
+    "CountryStage",
+    "FlagStage",
+    "FuzzyStage",
+    "Mention",
+    "NotAPlaceStage",
+    "PostcodeStage",
+    "Reading",
+    "Segmenter",
+    "SubdivisionStage",
+]
 
 # Short function words never looked up alone (common practice for gazetteer
 # matching: they collide with tiny places named "And", "Of", "Is").
 STOPWORDS = frozenset(
-    "a an and or the of in on at to is it be by for from with near but not my our we i me "
-    "y e et und oder der die das den dem des le la les l du des de da do dos das di del al el "
-    "los las lo o u en em no na nos nas im am um zu bei von und".split()
+    [
+        "a",
+        "an",
+        "and",
+        "or",
+        "the",
+        "of",
+        "in",
+        "on",
+        "at",
+        "to",
+        "is",
+        "it",
+        "be",
+        "by",
+        "for",
+        "from",
+        "with",
+        "near",
+        "but",
+        "not",
+        "my",
+        "our",
+        "we",
+        "i",
+        "me",
+        "y",
+        "e",
+        "et",
+        "und",
+        "oder",
+        "der",
+        "die",
+        "das",
+        "den",
+        "dem",
+        "des",
+        "le",
+        "la",
+        "les",
+        "l",
+        "du",
+        "des",
+        "de",
+        "da",
+        "do",
+        "dos",
+        "das",
+        "di",
+        "del",
+        "al",
+        "el",
+        "los",
+        "las",
+        "lo",
+        "o",
+        "u",
+        "en",
+        "em",
+        "no",
+        "na",
+        "nos",
+        "nas",
+        "im",
+        "am",
+        "um",
+        "zu",
+        "bei",
+        "von",
+        "und",
+    ]
 )
 # Alpha-3 codes that are also everyday words or names: read only when typed in capitals.
 UNSAFE_ALPHA3 = frozenset(
-    "and are ben bol bra can che chn col com cub dom fin fro gab gin hun ind ita jam ken lie mar mac "
-    "mli nor pan per pol pry sau som sur tan ton tun tur vat wsm arm aut bel cod cok gum hmd ncl "
-    "niu pak per pri sen slv tgo yem mus mda".split()
+    [
+        "and",
+        "are",
+        "ben",
+        "bol",
+        "bra",
+        "can",
+        "che",
+        "chn",
+        "col",
+        "com",
+        "cub",
+        "dom",
+        "fin",
+        "fro",
+        "gab",
+        "gin",
+        "hun",
+        "ind",
+        "ita",
+        "jam",
+        "ken",
+        "lie",
+        "mar",
+        "mac",
+        "mli",
+        "nor",
+        "pan",
+        "per",
+        "pol",
+        "pry",
+        "sau",
+        "som",
+        "sur",
+        "tan",
+        "ton",
+        "tun",
+        "tur",
+        "vat",
+        "wsm",
+        "arm",
+        "aut",
+        "bel",
+        "cod",
+        "cok",
+        "gum",
+        "hmd",
+        "ncl",
+        "niu",
+        "pak",
+        "per",
+        "pri",
+        "sen",
+        "slv",
+        "tgo",
+        "yem",
+        "mus",
+        "mda",
+    ]
 )
 # Two-letter codes that are everyday words when typed in lower case.
-LOWER_WORD_CODES = frozenset("in at to be is it me my no so us am an as by do go he hi id if la lo ma "
-                             "mo ne of oh ok on or pa sa al co de".split())
+LOWER_WORD_CODES = frozenset(
+    [
+        "in",
+        "at",
+        "to",
+        "be",
+        "is",
+        "it",
+        "me",
+        "my",
+        "no",
+        "so",
+        "us",
+        "am",
+        "an",
+        "as",
+        "by",
+        "do",
+        "go",
+        "he",
+        "hi",
+        "id",
+        "if",
+        "la",
+        "lo",
+        "ma",
+        "mo",
+        "ne",
+        "of",
+        "oh",
+        "ok",
+        "on",
+        "or",
+        "pa",
+        "sa",
+        "al",
+        "co",
+        "de",
+    ]
+)
 # Scripts written without spaces between words: Han, Kana, Hangul runs, Thai,
 # Lao, Khmer, Myanmar. Names inside them are found by longest substring match.
-_CJK = re.compile(r"[\u0e00-\u0eff\u1000-\u109f\u1780-\u17ff\u3040-\u30ff\u3400-\u4dbf\u4e00-\u9fff"
-                  r"\uac00-\ud7af]")
+_CJK = re.compile(
+    r"[\u0e00-\u0eff\u1000-\u109f\u1780-\u17ff\u3040-\u30ff\u3400-\u4dbf\u4e00-\u9fff"
+    r"\uac00-\ud7af]"
+)
 _IPV4 = re.compile(r"^\d{1,3}(?:[ .]\d{1,3}){3}$")
 # Bounded repeats: a megabyte-long cell must not make the search quadratic.
 _URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|[\w.+-]{1,64}@[\w-]{1,64}\.\w")
@@ -51,7 +226,7 @@ _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
 @dataclass(frozen=True)
 class Reading:
     place: Place
-    origin: str       # name origin (name, alias, code2, postal, alt …) or flag / postcode
+    origin: str  # name origin (name, alias, code2, postal, alt …) or flag / postcode
     weight: float
     similarity: float = 1.0  # 1.0 exact; typo matches carry 1 − edits / length
 
@@ -70,7 +245,9 @@ class Mention:
 
     @property
     def is_container(self) -> bool:
-        return all(r.place.kind in ("country", "subdivision", "area", "region") for r in self.readings)
+        return all(
+            r.place.kind in ("country", "subdivision", "area", "region") for r in self.readings
+        )
 
 
 @dataclass
@@ -84,16 +261,29 @@ class Span:
 
 # Relative trust in a name by where it comes from (common practice: official
 # and curated names over alternate spellings and translations).
-ORIGIN_WEIGHT = {"name": 1.0, "alias": 5.0, "code2": 1.0, "code3": 1.0, "sub_code": 0.8,
-                 "postal": 1.0, "translation": 0.8, "alt": 0.3, "lower_sub": 0.05,
-                 "adjective": 0.6, "region": 1.0, "short": 0.2}
+ORIGIN_WEIGHT = {
+    "name": 1.0,
+    "alias": 5.0,
+    "code2": 1.0,
+    "code3": 1.0,
+    "sub_code": 0.8,
+    "postal": 1.0,
+    "translation": 0.8,
+    "alt": 0.3,
+    "lower_sub": 0.05,
+    "adjective": 0.6,
+    "region": 1.0,
+    "short": 0.2,
+}
 # A country named in the text is rarely meant as anything else.
 KIND_WEIGHT = {"country": 3.0, "subdivision": 1.0, "city": 1.0, "area": 1.0, "region": 1.0}
 MIN_WEIGHT = 300.0  # a floor so places with unknown population still count
 
 
 def place_weight(place: Place, origin: str) -> float:
-    return max(float(place.pop), MIN_WEIGHT) * ORIGIN_WEIGHT.get(origin, 0.5) * KIND_WEIGHT[place.kind]
+    return (
+        max(float(place.pop), MIN_WEIGHT) * ORIGIN_WEIGHT.get(origin, 0.5) * KIND_WEIGHT[place.kind]
+    )
 
 
 class Segmenter:
@@ -185,7 +375,11 @@ class NotAPlaceStage:
             return "placeholder" if len(raw) <= 3 else "junk"
         if query.flags:
             return ""  # a flag is a place, whatever words surround it
-        keys = {query.folded, re.sub(r"[^\w\s]", " ", query.folded).strip(), " ".join(p.key for p in query.parts)}
+        keys = {
+            query.folded,
+            re.sub(r"[^\w\s]", " ", query.folded).strip(),
+            " ".join(p.key for p in query.parts),
+        }
         keys |= {re.sub(r"\s+", " ", k).strip() for k in keys}
         for k in keys - {""}:
             kind = self.table.get(k)
@@ -194,7 +388,12 @@ class NotAPlaceStage:
         bare = query.folded.replace(" ", "")
         if _IPV4.match(query.folded) or _URL.search(query.key):
             return "junk"
-        if len(bare) >= 5 and bare.isalpha() and bare.isascii() and any(bare in row for row in _KEY_ROWS):
+        if (
+            len(bare) >= 5
+            and bare.isalpha()
+            and bare.isascii()
+            and any(bare in row for row in _KEY_ROWS)
+        ):
             return "junk"
         if len(bare) >= 3 and len(set(bare)) == 1:
             return "junk"
@@ -208,9 +407,16 @@ class FlagStage:
     def resolve(self, query: Query) -> list[Mention]:
         out = []
         for code in query.flags:
-            place = self.index.countries.get(code) if "-" not in code else self.index.subdivisions.get(code)
+            place = (
+                self.index.countries.get(code)
+                if "-" not in code
+                else self.index.subdivisions.get(code)
+            )
             if place is None:  # the EU and UN flags name regions, not countries
-                place = next((h.place for h in self.index.lookup(code.lower()) if h.place.kind == "region"), None)
+                place = next(
+                    (h.place for h in self.index.lookup(code.lower()) if h.place.kind == "region"),
+                    None,
+                )
             if place is not None:
                 out.append(Mention(code, -1, 0, [Reading(place, "flag", 1.0)], source="flag"))
         return out
@@ -269,7 +475,7 @@ class _SpanStage:
 
 def _typed(query: Query, span: Span) -> str:
     part = query.parts[span.part]
-    return " ".join(t.orig for t in part.tokens[span.start:span.end])
+    return " ".join(t.orig for t in part.tokens[span.start : span.end])
 
 
 BARE_POSTAL_COUNTRIES = frozenset({"US", "CA", "AU"})
@@ -378,7 +584,9 @@ class FuzzyStage:
             words = [t.key for t in part.tokens]
             if part.street:
                 continue
-            free = [i for i in range(len(words)) if (pi, i) not in covered and words[i] not in STOPWORDS]
+            free = [
+                i for i in range(len(words)) if (pi, i) not in covered and words[i] not in STOPWORDS
+            ]
             if not free:
                 continue
             # Runs of uncovered words, tried as one phrase.
@@ -396,4 +604,3 @@ class FuzzyStage:
                 if m is not None:
                     out.append(m)
         return out
-

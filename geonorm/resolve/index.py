@@ -28,17 +28,38 @@ from functools import lru_cache
 from importlib import metadata, resources
 from pathlib import Path
 
-from .errors import IndexError_
+from ..errors import IndexError_
 from .normalize import fold
 
-__all__ = ["INDEX_VERSION", "PlaceIndex", "Place", "NameHit", "build_index", "default_index_path",
-           "data_dir", "gazetteer_dir", "load_index"]
+__all__ = [
+    "INDEX_VERSION",
+    "NameHit",
+    "Place",
+    "PlaceIndex",
+    "build_index",
+    "data_dir",
+    "default_index_path",
+    "gazetteer_dir",
+    "load_index",
+]
 
 INDEX_VERSION = 2
 
 # Name origins, strongest first. Stored as small integers.
-ORIGINS = ("name", "alias", "code2", "code3", "postal", "sub_code", "alt", "translation",
-           "lower_sub", "adjective", "region", "short")
+ORIGINS = (
+    "name",
+    "alias",
+    "code2",
+    "code3",
+    "postal",
+    "sub_code",
+    "alt",
+    "translation",
+    "lower_sub",
+    "adjective",
+    "region",
+    "short",
+)
 ORIGIN_ID = {o: i for i, o in enumerate(ORIGINS)}
 
 Progress = Callable[[str], None]
@@ -62,25 +83,27 @@ def gazetteer_dir() -> Path:
     packaged = Path(str(resources.files("geonorm"))) / "_gazetteer"
     if packaged.is_dir():
         return packaged
-    source = Path(__file__).resolve().parent.parent / "gazetteer"
+    source = Path(__file__).resolve().parents[2] / "gazetteer"
     if source.is_dir():
         return source
-    raise IndexError_("the curated gazetteer tables are missing from this installation",
-                      hint="reinstall geonorm (pip install --force-reinstall geonorm)")
+    raise IndexError_(
+        "the curated gazetteer tables are missing from this installation",
+        hint="reinstall geonorm (pip install --force-reinstall geonorm)",
+    )
 
 
 @dataclass(frozen=True)
 class Place:
     id: int
-    kind: str          # country | subdivision | city | area | region
-    cc: str            # ISO 3166-1 alpha-2 ('' for regions)
-    sub: str           # first-level ISO 3166-2 code or ''
+    kind: str  # country | subdivision | city | area | region
+    cc: str  # ISO 3166-1 alpha-2 ('' for regions)
+    sub: str  # first-level ISO 3166-2 code or ''
     name: str
     lat: float | None
     lon: float | None
     pop: int
-    gid: int | None    # GeoNames id
-    fame: int = 0      # how many alternate names GeoNames knows (a proxy for how widely it is known)
+    gid: int | None  # GeoNames id
+    fame: int = 0  # how many alternate names GeoNames knows (a proxy for how widely it is known)
 
 
 @dataclass(frozen=True)
@@ -91,8 +114,10 @@ class NameHit:
 
 def _read_csv(path: Path) -> list[dict[str, str]]:
     if not path.exists():
-        raise IndexError_(f"curated table {path.name} is missing from {path.parent}",
-                          hint="reinstall geonorm; the gazetteer/ folder must ship with it")
+        raise IndexError_(
+            f"curated table {path.name} is missing from {path.parent}",
+            hint="reinstall geonorm; the gazetteer/ folder must ship with it",
+        )
     with open(path, encoding="utf-8", newline="") as fh:
         return [{k: (v or "").strip() for k, v in row.items()} for row in csv.DictReader(fh)]
 
@@ -114,11 +139,67 @@ def _good_alt_name(name: str) -> bool:
 # name of a subdivision they would match everywhere, so they are not indexed for
 # subdivisions (common practice).
 GENERIC_PLACE_WORDS = frozenset(
-    "north south east west central centre center capital northern southern eastern western middle upper lower "
-    "coast coastal island islands lake lakes river valley mountain mountains border northeast northwest "
-    "southeast southwest north east north west south east south west the south the north the east the west "
-    "interior highlands lowlands".split(" ")) | {"north east", "north west", "south east", "south west",
-                                                  "the south", "the north", "the east", "the west"}
+    [
+        "north",
+        "south",
+        "east",
+        "west",
+        "central",
+        "centre",
+        "center",
+        "capital",
+        "northern",
+        "southern",
+        "eastern",
+        "western",
+        "middle",
+        "upper",
+        "lower",
+        "coast",
+        "coastal",
+        "island",
+        "islands",
+        "lake",
+        "lakes",
+        "river",
+        "valley",
+        "mountain",
+        "mountains",
+        "border",
+        "northeast",
+        "northwest",
+        "southeast",
+        "southwest",
+        "north",
+        "east",
+        "north",
+        "west",
+        "south",
+        "east",
+        "south",
+        "west",
+        "the",
+        "south",
+        "the",
+        "north",
+        "the",
+        "east",
+        "the",
+        "west",
+        "interior",
+        "highlands",
+        "lowlands",
+    ]
+) | {
+    "north east",
+    "north west",
+    "south east",
+    "south west",
+    "the south",
+    "the north",
+    "the east",
+    "the west",
+}
 
 
 def _name_variants(name: str) -> list[str]:
@@ -142,9 +223,9 @@ def _saint_variants(name: str) -> list[str]:
     out = []
     for long, short in _SAINTS:
         if key.startswith(long):
-            out.append(short + key[len(long):])
+            out.append(short + key[len(long) :])
         elif key.startswith(short):
-            out.append(long + key[len(short):])
+            out.append(long + key[len(short) :])
     return [o.strip() for o in out]
 
 
@@ -163,7 +244,9 @@ def _haversine_deg2(a: tuple[float, float], b: tuple[float, float]) -> float:
     return dlat * dlat + dlon * dlon
 
 
-def map_admin1(cities: Iterable[dict], top_subs: dict[str, dict[str, dict]]) -> dict[tuple[str, str], str]:
+def map_admin1(
+    cities: Iterable[dict], top_subs: dict[str, dict[str, dict]]
+) -> dict[tuple[str, str], str]:
     """Map GeoNames (country, admin1 code) to a first-level ISO 3166-2 code.
 
     GeoNames admin1 codes are not ISO codes (Bavaria is DE/02). An area scores
@@ -195,10 +278,14 @@ def map_admin1(cities: Iterable[dict], top_subs: dict[str, dict[str, dict]]) -> 
         centre: dict[tuple[str, str], tuple[float, float]] = {}
         for key in keys:
             members = groups[key]
-            centre[key] = (sum(c["latitude"] for c in members) / len(members),
-                           sum(c["longitude"] for c in members) / len(members))
-        nearest = sorted(min((math.sqrt(_haversine_deg2(centre[k], ll)) for ll in located.values()),
-                             default=1.0) for k in keys)
+            centre[key] = (
+                sum(c["latitude"] for c in members) / len(members),
+                sum(c["longitude"] for c in members) / len(members),
+            )
+        nearest = sorted(
+            min((math.sqrt(_haversine_deg2(centre[k], ll)) for ll in located.values()), default=1.0)
+            for k in keys
+        )
         scale = max(0.3, nearest[len(nearest) // 2]) if nearest else 1.0
         scores: list[tuple[float, tuple[str, str], str]] = []
         for key in keys:
@@ -208,8 +295,12 @@ def map_admin1(cities: Iterable[dict], top_subs: dict[str, dict[str, dict]]) -> 
             top = max(share.values(), default=1.0) or 1.0
             share = {code: v / top for code, v in share.items()}  # nearest centroid scores 1
             largest = sorted(groups[key], key=lambda c: -int(c.get("population") or 0))[:3]
-            named = {name_to_sub[fold(n)] for c in largest for n in (c["name"], *(c.get("alternatenames") or ()))
-                     if fold(n) in name_to_sub}
+            named = {
+                name_to_sub[fold(n)]
+                for c in largest
+                for n in (c["name"], *(c.get("alternatenames") or ()))
+                if fold(n) in name_to_sub
+            }
             for hit in named:
                 share[hit] = share.get(hit, 0.0) + 0.6
             direct = f"{cc}-{key[1]}"
@@ -221,7 +312,7 @@ def map_admin1(cities: Iterable[dict], top_subs: dict[str, dict[str, dict]]) -> 
         keys_sorted = sorted(keys)
         table = {(k, c): sc for sc, k, c in scores}
         matrix = [[table.get((k, c), 0.0) for c in codes] for k in keys_sorted]
-        for (ri, ci) in _assign(matrix):
+        for ri, ci in _assign(matrix):
             if matrix[ri][ci] >= 0.2:
                 mapping[keys_sorted[ri]] = codes[ci]
         # Areas left over (more GeoNames areas than ISO units): their best vote, shared.
@@ -298,8 +389,18 @@ class _Builder:
         self.names: set[tuple[str, int, int]] = set()
         self.fuzzy: set[tuple[str, int, int]] = set()
 
-    def add_place(self, kind: str, cc: str, sub: str, name: str, lat: float | None,
-                  lon: float | None, pop: int, gid: int | None, fame: int = 0) -> int:
+    def add_place(
+        self,
+        kind: str,
+        cc: str,
+        sub: str,
+        name: str,
+        lat: float | None,
+        lon: float | None,
+        pop: int,
+        gid: int | None,
+        fame: int = 0,
+    ) -> int:
         pid = len(self.places) + 1
         self.places.append((pid, kind, cc, sub, name, lat, lon, pop, gid, fame))
         return pid
@@ -308,8 +409,9 @@ class _Builder:
         key = fold(text)
         if not key:
             return
-        if key in GENERIC_PLACE_WORDS and (origin in ("translation", "lower_sub") or
-                                           self.places[pid - 1][1] == "subdivision"):
+        if key in GENERIC_PLACE_WORDS and (
+            origin in ("translation", "lower_sub") or self.places[pid - 1][1] == "subdivision"
+        ):
             return
         self.names.add((key, pid, ORIGIN_ID[origin]))
         if fuzzy and len(key) >= 5 and key.isascii():
@@ -338,7 +440,9 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         c = codes.get(a2)
         gn = gn_countries.get(a2, {})
         name = (getattr(c, "common_name", None) or c.name) if c else gn.get("name", a2)
-        pid = b.add_place("country", a2, "", name, None, None, int(gn.get("population") or 0), gn.get("geonameid"))
+        pid = b.add_place(
+            "country", a2, "", name, None, None, int(gn.get("population") or 0), gn.get("geonameid")
+        )
         country_pid[a2] = pid
         if c:
             for attr in ("name", "official_name", "common_name"):
@@ -371,13 +475,18 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
             region_labels[label] = b.add_place("region", "", "", label, None, None, 0, None)
         return region_labels[label]
 
-    cldr_locales = [i for i in localedata.locale_identifiers() if "_" not in i or i.count("_") == 1 and i.split("_")[1].istitle() and len(i.split("_")[1]) == 4]
+    cldr_locales = [
+        i
+        for i in localedata.locale_identifiers()
+        if "_" not in i
+        or (i.count("_") == 1 and i.split("_")[1].istitle() and len(i.split("_")[1]) == 4)
+    ]
     en_regions = Locale.parse("en").territories
     nonplace_rows: list[tuple[str, str]] = []
     for ident in sorted(cldr_locales):
         try:
             terr = Locale.parse(ident).territories
-        except Exception:  # noqa: BLE001 - a broken locale file must not stop the build
+        except Exception:
             continue
         for code, name in terr.items():
             if code in country_pid:
@@ -392,10 +501,14 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
             b.add_name(name, country_pid[code], "name", fuzzy=True)
 
     say("reading ISO 3166-2 subdivisions")
-    iso2_data = json.loads((Path(str(resources.files("iso3166_2"))) / "iso3166-2.json").read_text("utf-8"))
+    iso2_data = json.loads(
+        (Path(str(resources.files("iso3166_2"))) / "iso3166-2.json").read_text("utf-8")
+    )
     # A parent that is only a geographical grouping (Indonesia's islands) is not
     # an administrative level: its children are the first level GeoNames uses.
-    geographic = {s.code for s in pycountry.subdivisions if "geographical" in (s.type or "").lower()}
+    geographic = {
+        s.code for s in pycountry.subdivisions if "geographical" in (s.type or "").lower()
+    }
     parents: dict[str, str | None] = {}
     for s in pycountry.subdivisions:
         parents[s.code] = None if s.parent_code in geographic else s.parent_code
@@ -415,8 +528,12 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
                 names.add(chunk)
         if extra.get("name"):
             names.add(extra["name"])
-        top_subs[s.country_code][s.code] = {"names": names, "latLng": extra.get("latLng"), "name": s.name,
-                                            "abbreviations": abbreviations}
+        top_subs[s.country_code][s.code] = {
+            "names": names,
+            "latLng": extra.get("latLng"),
+            "name": s.name,
+            "abbreviations": abbreviations,
+        }
 
     say("reading GeoNames places (≥500 people)")
     cities = list(gc.get_cities().values())
@@ -431,7 +548,9 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
     for cc in sorted(top_subs):
         for code, s in sorted(top_subs[cc].items()):
             lat, lon = (s["latLng"] or (None, None))[:2] if s["latLng"] else (None, None)
-            pid = b.add_place("subdivision", cc, code, s["name"], lat, lon, sub_pop.get(code, 0), None)
+            pid = b.add_place(
+                "subdivision", cc, code, s["name"], lat, lon, sub_pop.get(code, 0), None
+            )
             sub_pid[code] = pid
             for n in s["names"]:
                 b.add_name(n, pid, "name", fuzzy=True)
@@ -467,8 +586,17 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         cc = c["countrycode"]
         sub = admin1.get((cc, c.get("admin1code") or ""), "")
         pop = int(c.get("population") or 0)
-        pid = b.add_place("city", cc, sub, c["name"], c["latitude"], c["longitude"], pop, c["geonameid"],
-                          len(c.get("alternatenames") or ()))
+        pid = b.add_place(
+            "city",
+            cc,
+            sub,
+            c["name"],
+            c["latitude"],
+            c["longitude"],
+            pop,
+            c["geonameid"],
+            len(c.get("alternatenames") or ()),
+        )
         gid_pid[c["geonameid"]] = pid
         big = pop >= 15000
         b.add_name(c["name"], pid, "name", fuzzy=big)
@@ -480,7 +608,12 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
                 # A short form of a longer name ("Morelos" for "Ecatepec de Morelos") is weak.
                 words = set(fold(alt).split())
                 short = bool(words) and words < main_words
-                b.add_name(alt, pid, "short" if short else "alt", fuzzy=big and pop >= 100_000 and not short)
+                b.add_name(
+                    alt,
+                    pid,
+                    "short" if short else "alt",
+                    fuzzy=big and pop >= 100_000 and not short,
+                )
 
     say("reading curated tables from gazetteer/")
     city_by_name: dict[tuple[str, str], list[tuple[int, int, str]]] = defaultdict(list)
@@ -488,12 +621,20 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
         for n in {c["name"], *(c.get("alternatenames") or ())}:
             if n:
                 city_by_name[(fold(n), c["countrycode"])].append(
-                    (int(c.get("population") or 0), c["geonameid"], admin1.get((c["countrycode"], c.get("admin1code") or ""), "")))
+                    (
+                        int(c.get("population") or 0),
+                        c["geonameid"],
+                        admin1.get((c["countrycode"], c.get("admin1code") or ""), ""),
+                    )
+                )
     missing: list[str] = []
     for row in _read_csv(gaz / "aliases.csv"):
         cc, sub, city = row["country"], row.get("subdivision", ""), row.get("city", "")
         if city:
-            found = sorted(city_by_name.get((fold(city), cc), []), key=lambda t: (-(t[2] == sub) if sub else 0, -t[0]))
+            found = sorted(
+                city_by_name.get((fold(city), cc), []),
+                key=lambda t: (-(t[2] == sub) if sub else 0, -t[0]),
+            )
             if not found:
                 missing.append(f"aliases.csv: city {city!r} not in GeoNames for {cc}")
                 continue
@@ -504,7 +645,9 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
                 continue
             if row.get("kind") == "region_in_country":
                 # A named area weighs like the subdivision it lies in.
-                pid = b.add_place("area", cc, sub, row["text"], None, None, sub_pop.get(sub, 0), None)
+                pid = b.add_place(
+                    "area", cc, sub, row["text"], None, None, sub_pop.get(sub, 0), None
+                )
                 b.add_name(row["text"], pid, "alias")
             else:
                 b.add_name(row["text"], sub_pid[sub], "alias")
@@ -529,8 +672,10 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
     for row in _read_csv(gaz / "fictional.csv"):
         nonplace_rows.append((fold(row["text"]), "fictional"))
     noise_rows = [(fold(r["phrase"]), r["position"]) for r in _read_csv(gaz / "noise_phrases.csv")]
-    postcode_rows = [(r["format"], r["prefix"].lower(), r["country"], r["subdivision"], r.get("city", ""))
-                     for r in _read_csv(gaz / "postcode_areas.csv")]
+    postcode_rows = [
+        (r["format"], r["prefix"].lower(), r["country"], r["subdivision"], r.get("city", ""))
+        for r in _read_csv(gaz / "postcode_areas.csv")
+    ]
     postcode_resolved = []
     for fmt, prefix, cc, sub, city in postcode_rows:
         target: int | None = None
@@ -561,7 +706,9 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
     )
     db.executemany("INSERT INTO place VALUES (?,?,?,?,?,?,?,?,?,?)", b.places)
     db.executemany("INSERT INTO name VALUES (?,?,?)", sorted(b.names))
-    db.executemany("INSERT INTO fuzzy VALUES (?,?,?,?)", ((k[0], k, p, o) for k, p, o in sorted(b.fuzzy)))
+    db.executemany(
+        "INSERT INTO fuzzy VALUES (?,?,?,?)", ((k[0], k, p, o) for k, p, o in sorted(b.fuzzy))
+    )
     db.executemany("INSERT OR IGNORE INTO nonplace VALUES (?,?)", nonplace_rows)
     db.executemany("INSERT INTO noise VALUES (?,?)", noise_rows)
     db.executemany("INSERT OR IGNORE INTO postcode VALUES (?,?)", postcode_resolved)
@@ -583,7 +730,9 @@ def build_index(path: Path | None = None, progress: Progress | None = None) -> P
     db.commit()
     db.close()
     os.replace(tmp, path)
-    say(f"index ready: {path} ({path.stat().st_size / 1e6:.0f} MB, {time.perf_counter() - started:.0f} s)")
+    say(
+        f"index ready: {path} ({path.stat().st_size / 1e6:.0f} MB, {time.perf_counter() - started:.0f} s)"
+    )
     return path
 
 
@@ -599,12 +748,16 @@ class PlaceIndex:
         try:
             self.meta = dict(db.execute("SELECT key, value FROM meta").fetchall())
         except sqlite3.DatabaseError as exc:
-            raise IndexError_(f"the place index at {self.path} is unreadable ({exc})",
-                              hint="rebuild it: geonorm gazetteer build") from exc
+            raise IndexError_(
+                f"the place index at {self.path} is unreadable ({exc})",
+                hint="rebuild it: geonorm gazetteer build",
+            ) from exc
         if self.meta.get("index_version") != str(INDEX_VERSION):
-            raise IndexError_(f"the place index at {self.path} has version "
-                              f"{self.meta.get('index_version')}, this geonorm needs {INDEX_VERSION}",
-                              hint="rebuild it: geonorm gazetteer build")
+            raise IndexError_(
+                f"the place index at {self.path} has version "
+                f"{self.meta.get('index_version')}, this geonorm needs {INDEX_VERSION}",
+                hint="rebuild it: geonorm gazetteer build",
+            )
         self.nonplace = dict(db.execute("SELECT key, kind FROM nonplace").fetchall())
         self.noise = db.execute("SELECT phrase, position FROM noise").fetchall()
         self.postcodes = dict(db.execute("SELECT prefix, place FROM postcode").fetchall())
@@ -642,9 +795,14 @@ class PlaceIndex:
     @lru_cache(maxsize=300_000)  # noqa: B019 - the index lives as long as the process
     def lookup(self, key: str) -> tuple[NameHit, ...]:
         """All places whose folded name equals ``key``, with the name's origin."""
-        rows = self._db().execute(
-            "SELECT p.*, n.origin FROM name n JOIN place p ON p.id = n.place WHERE n.key = ?", (key,)
-        ).fetchall()
+        rows = (
+            self._db()
+            .execute(
+                "SELECT p.*, n.origin FROM name n JOIN place p ON p.id = n.place WHERE n.key = ?",
+                (key,),
+            )
+            .fetchall()
+        )
         hits = []
         for row in rows:
             p = self._places.get(row[0]) or Place(*row[:10])
@@ -652,14 +810,19 @@ class PlaceIndex:
         return tuple(hits)
 
     @lru_cache(maxsize=4096)  # noqa: B019 - the index lives as long as the process
-    def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], list[tuple[int, str]]]:
+    def fuzzy_block(
+        self, first: str, length: int, spread: int
+    ) -> tuple[list[str], list[tuple[int, str]]]:
         """Names typo matching may reach: starting with ``first``, within ``spread`` of ``length``
         characters; with their (place, origin)."""
         with self._lock:
             by_length = self._fuzzy_blocks.get(first)
             if by_length is None:
-                rows = self._db().execute("SELECT key, place, origin FROM fuzzy WHERE block = ?",
-                                          (first,)).fetchall()
+                rows = (
+                    self._db()
+                    .execute("SELECT key, place, origin FROM fuzzy WHERE block = ?", (first,))
+                    .fetchall()
+                )
                 by_length = {}
                 for key, place, origin in rows:
                     keys, targets = by_length.setdefault(len(key), ([], []))
@@ -688,7 +851,9 @@ def load_index(path: Path | None = None, progress: Progress | None = None) -> Pl
         idx = _loaded.get(path)
         if idx is None:
             if not path.exists():
-                (progress or (lambda m: None))(f"first use: building the place index at {path} (about a minute, once)")
+                (progress or (lambda m: None))(
+                    f"first use: building the place index at {path} (about a minute, once)"
+                )
                 build_index(path, progress)
             idx = PlaceIndex(path)
             _loaded[path] = idx

@@ -42,7 +42,7 @@ from .stages import (
     SubdivisionStage,
 )
 
-__all__ = ["Resolver", "RESOLVER_VERSION", "DEFAULT_ACCEPT", "apply_accept"]
+__all__ = ["DEFAULT_ACCEPT", "RESOLVER_VERSION", "Resolver", "apply_accept"]
 
 RESOLVER_VERSION = "1.2"
 # Confidence needed for "matched". On the labelled development set, 0.7 keeps
@@ -58,10 +58,14 @@ SOVEREIGN = {
     **dict.fromkeys(["PR", "GU", "VI", "AS", "MP", "UM"], "US"),
     **dict.fromkeys(["GL", "FO"], "DK"),
     **dict.fromkeys(["AW", "CW", "SX", "BQ"], "NL"),
-    **dict.fromkeys(["BM", "KY", "GI", "VG", "AI", "MS", "TC", "FK", "SH", "PN", "IO", "GS",
-                     "JE", "GG", "IM"], "GB"),
+    **dict.fromkeys(
+        ["BM", "KY", "GI", "VG", "AI", "MS", "TC", "FK", "SH", "PN", "IO", "GS", "JE", "GG", "IM"],
+        "GB",
+    ),
     **dict.fromkeys(["RE", "GP", "MQ", "GF", "YT", "NC", "PF", "PM", "BL", "MF", "WF", "TF"], "FR"),
-    "AX": "FI", "SJ": "NO", "BV": "NO",
+    "AX": "FI",
+    "SJ": "NO",
+    "BV": "NO",
     **dict.fromkeys(["CX", "CC", "NF", "HM"], "AU"),
     **dict.fromkeys(["TK", "NU", "CK"], "NZ"),
 }
@@ -71,13 +75,21 @@ MAX_TEXT = 500
 # to this power (0 = ignore the file, 1 = full Bayes with the file as prior).
 # Kept low because a file's majority says little about one person's town.
 PRIOR_EXPONENT = 0.3
-NOT_A_PLACE_REASON = {"empty": Reason.EMPTY, "placeholder": Reason.PLACEHOLDER,
-                      "junk": Reason.JUNK, "fictional": Reason.FICTIONAL}
+NOT_A_PLACE_REASON = {
+    "empty": Reason.EMPTY,
+    "placeholder": Reason.PLACEHOLDER,
+    "junk": Reason.JUNK,
+    "fictional": Reason.FICTIONAL,
+}
 
 
 def apply_accept(res: Resolution, accept: float) -> Resolution:
     """Set ``matched`` or ``review`` from the confidence and the accept threshold."""
-    if res.country and res.status in (Status.MATCHED, Status.REVIEW) and res.reason != Reason.SEVERAL_COUNTRIES:
+    if (
+        res.country
+        and res.status in (Status.MATCHED, Status.REVIEW)
+        and res.reason != Reason.SEVERAL_COUNTRIES
+    ):
         res.status = Status.MATCHED if res.confidence >= accept else Status.REVIEW
     return res
 
@@ -108,9 +120,11 @@ def _dist(readings: Iterable[Reading]) -> dict[str, float]:
     d: dict[str, float] = defaultdict(float)
     for r in readings:
         if r.place.cc:
-            w = r.weight * r.similarity ** 4
+            w = r.weight * r.similarity**4
             if r.place.kind == "city":
-                w *= math.sqrt((1 + r.place.fame) / 21)  # fame: Barcelona, Spain over Barcelona, Venezuela
+                w *= math.sqrt(
+                    (1 + r.place.fame) / 21
+                )  # fame: Barcelona, Spain over Barcelona, Venezuela
             d[r.place.cc] = max(d[r.place.cc], w)
     total = sum(d.values())
     return {c: v / total for c, v in d.items()} if total > 0 else {}
@@ -128,13 +142,21 @@ class Resolver:
     'US'
     """
 
-    def __init__(self, index: PlaceIndex | None = None, *, accept: float = DEFAULT_ACCEPT,
-                 calibration: Calibration | None = None, progress=None) -> None:
+    def __init__(
+        self,
+        index: PlaceIndex | None = None,
+        *,
+        accept: float = DEFAULT_ACCEPT,
+        calibration: Calibration | None = None,
+        progress=None,
+    ) -> None:
         if not 0.0 <= accept <= 1.0:
-            from .errors import InputError
+            from ..errors import InputError
 
-            raise InputError(f"--accept must be between 0 and 1, got {accept}",
-                             hint="use a probability such as 0.8")
+            raise InputError(
+                f"--accept must be between 0 and 1, got {accept}",
+                hint="use a probability such as 0.8",
+            )
         self.index = index or load_index(progress=progress)
         self.accept = accept
         self.calibration = calibration or load_calibration()
@@ -149,8 +171,11 @@ class Resolver:
         self.flags = FlagStage(self.index)
         self.postcodes = PostcodeStage(self.index)
         self.segmenter = seg
-        self.name_stages = [CountryStage(self.index, seg), SubdivisionStage(self.index, seg),
-                            CityStage(self.index, seg)]
+        self.name_stages = [
+            CountryStage(self.index, seg),
+            SubdivisionStage(self.index, seg),
+            CityStage(self.index, seg),
+        ]
         self.fuzzy = FuzzyStage(self.index)
 
     @property
@@ -158,8 +183,10 @@ class Resolver:
         """Identifies everything an answer depends on except the accept threshold."""
         cal = self.calibration
         curves = json.dumps([cal.method, cal.a, cal.b, cal.by_reason], sort_keys=True)
-        return (f"{RESOLVER_VERSION}+index{self.index.meta.get('index_version')}"
-                f"@{self.index.meta.get('built_at')}+cal{zlib.crc32(curves.encode()):08x}")
+        return (
+            f"{RESOLVER_VERSION}+index{self.index.meta.get('index_version')}"
+            f"@{self.index.meta.get('built_at')}+cal{zlib.crc32(curves.encode()):08x}"
+        )
 
     # -- public API ---------------------------------------------------------
     def normalize(self, raw: object) -> Query:
@@ -181,11 +208,17 @@ class Resolver:
         query = self.normalize(raw)
         kind = self.not_a_place.resolve(query)
         if kind:
-            return Resolution(Status.NOT_A_PLACE, NOT_A_PLACE_REASON.get(kind, Reason.JUNK), confidence=1.0,
-                              score=1.0)
+            return Resolution(
+                Status.NOT_A_PLACE,
+                NOT_A_PLACE_REASON.get(kind, Reason.JUNK),
+                confidence=1.0,
+                score=1.0,
+            )
         mentions = self.mentions(query)
         res = self._decide(query, mentions)
-        res.confidence = round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
+        res.confidence = (
+            round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
+        )
         return apply_accept(res, self.accept)
 
     def reconsider(self, res: Resolution, prior: Mapping[str, float]) -> Resolution:
@@ -197,18 +230,29 @@ class Resolver:
         """
         if not res.evidence:
             return res
-        weighted = {c: v * (prior.get(c, 0.0) + 0.02) ** PRIOR_EXPONENT for c, v in res.evidence.items()}
+        weighted = {
+            c: v * (prior.get(c, 0.0) + 0.02) ** PRIOR_EXPONENT for c, v in res.evidence.items()
+        }
         total = sum(weighted.values())
         top = max(weighted, key=lambda c: (weighted[c], c))
         p_new, p_old = weighted[top] / total, res.evidence.get(res.country, 0.0)
         if top == res.country and p_new <= p_old:
             return res
         cand = next((c for c in res.candidates if c.country == top), Candidate(top))
-        new = replace(res, country=top, evidence={c: round(v / total, 4) for c, v in weighted.items()},
-                      reason=Reason.FILE_PRIOR)
+        new = replace(
+            res,
+            country=top,
+            evidence={c: round(v / total, 4) for c, v in weighted.items()},
+            reason=Reason.FILE_PRIOR,
+        )
         if top != res.country:
             new.subdivision, new.city, new.lat, new.lon, new.geonameid = (
-                cand.subdivision, cand.city, cand.lat, cand.lon, None)
+                cand.subdivision,
+                cand.city,
+                cand.lat,
+                cand.lon,
+                None,
+            )
         new.score = max(1e-4, min(0.9999, res.score * p_new / max(p_old, 1e-4)))
         new.confidence = round(self.calibration.apply(new.score, Reason.FILE_PRIOR), 4)
         return new
@@ -223,22 +267,28 @@ class Resolver:
         results = {v: self.resolve(v) for v in counts}
         return self.apply_file_prior(results, counts)
 
-    def apply_file_prior(self, results: dict[str, Resolution], counts: Mapping[str, int],
-                         accept: float | None = None) -> dict[str, Resolution]:
+    def apply_file_prior(
+        self, results: dict[str, Resolution], counts: Mapping[str, int], accept: float | None = None
+    ) -> dict[str, Resolution]:
         """Re-rank the ambiguous answers of one file with the file's country prior (in place);
         re-ranked answers get their status from ``accept`` (default: the resolver's)."""
         prior = self.file_prior(results, counts)
         if prior:
             for k, res in results.items():
-                if len(res.evidence) >= 2 and res.status in (Status.REVIEW, Status.MATCHED) \
-                        and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE):
-                    results[k] = apply_accept(self.reconsider(res, prior),
-                                              self.accept if accept is None else accept)
+                if (
+                    len(res.evidence) >= 2
+                    and res.status in (Status.REVIEW, Status.MATCHED)
+                    and res.reason in (Reason.AMBIGUOUS, Reason.CITY_BY_SIZE)
+                ):
+                    results[k] = apply_accept(
+                        self.reconsider(res, prior), self.accept if accept is None else accept
+                    )
         return results
 
     @staticmethod
-    def file_prior(results: Mapping[str, Resolution], counts: Mapping[str, int],
-                   min_rows: int = 50) -> dict[str, float]:
+    def file_prior(
+        results: Mapping[str, Resolution], counts: Mapping[str, int], min_rows: int = 50
+    ) -> dict[str, float]:
         """Country shares among confidently matched rows, by row count (Laplace-smoothed)."""
         tally: Counter[str] = Counter()
         matched, file_prior = Status.MATCHED, Reason.FILE_PRIOR
@@ -266,8 +316,12 @@ class Resolver:
                     by_span[key].readings.extend(m.readings)
                 else:
                     by_span[key] = m
-        covered = {(s.part, i) for s in spans for i in range(s.start, s.end)
-                   if (s.part, s.start, s.key) in by_span}
+        covered = {
+            (s.part, i)
+            for s in spans
+            for i in range(s.start, s.end)
+            if (s.part, s.start, s.key) in by_span
+        }
         if len(spans) == 1 and spans[0].key == query.folded and by_span:
             covered = {(pi, i) for pi, p in enumerate(query.parts) for i in range(len(p.tokens))}
         # Words explained by nothing: try spelling-tolerant matching on them, and on
@@ -275,10 +329,17 @@ class Resolver:
         # A part explained only by small places may be a misspelt big one ("Johannesberg"
         # is a German village); a town of 5,000+ met by its own name is taken as written.
         weak_parts = {m.part for m in by_span.values()} - {
-            m.part for m in by_span.values()
+            m.part
+            for m in by_span.values()
             if max(r.place.pop for r in m.readings) >= 15000
-            or any(_is_container_reading(r) or r.place.kind == "region" or r.origin == "alias"
-                   or r.origin == "name" and r.place.pop >= 5000 for r in m.readings)}
+            or any(
+                _is_container_reading(r)
+                or r.place.kind == "region"
+                or r.origin == "alias"
+                or (r.origin == "name" and r.place.pop >= 5000)
+                for r in m.readings
+            )
+        }
         for pi in weak_parts:
             covered -= {(pi, i) for i in range(len(query.parts[pi].tokens))}
         fuzzy = self.fuzzy.resolve(query, covered)
@@ -288,11 +349,15 @@ class Resolver:
             words = [t.key for t in part.tokens]
             if part.street or len(words) < 2 or pi in weak_parts:
                 continue
-            loose = [i for i, w in enumerate(words) if (pi, i) not in covered and w not in STOPWORDS]
+            loose = [
+                i for i, w in enumerate(words) if (pi, i) not in covered and w not in STOPWORDS
+            ]
             if loose and len(part.key) >= FuzzyStage.min_len and part.key.isascii():
                 whole = self.fuzzy.match(part.key, pi, 0)
                 if whole is not None and max(r.weight for r in whole.readings) >= 5 * max(
-                        (r.weight for k, m in by_span.items() if k[0] == pi for r in m.readings), default=0.0):
+                    (r.weight for k, m in by_span.items() if k[0] == pi for r in m.readings),
+                    default=0.0,
+                ):
                     weak_parts.add(pi)
                     fuzzy = [m for m in fuzzy if m.part != pi] + [whole]
         for fm in fuzzy:
@@ -313,35 +378,70 @@ class Resolver:
         name are noise (a street word, "one", "plot").
         """
         for m in mentions:
-            named = {r.place.cc for r in m.readings
-                     if r.place.kind == "country" and r.origin in ("name", "alias", "flag")}
+            named = {
+                r.place.cc
+                for r in m.readings
+                if r.place.kind == "country" and r.origin in ("name", "alias", "flag")
+            }
             if named:
-                m.readings = [r for r in m.readings if r.place.cc in named or (
-                    r.place.kind != "city" or r.place.pop >= 1_000_000)
-                    and r.origin not in ("lower_sub", "translation", "alt", "short")]
+                m.readings = [
+                    r
+                    for r in m.readings
+                    if r.place.cc in named
+                    or (
+                        (r.place.kind != "city" or r.place.pop >= 1_000_000)
+                        and r.origin not in ("lower_sub", "translation", "alt", "short")
+                    )
+                ]
             if any(r.origin == "code3" for r in m.readings):
                 # Three capitals that are an ISO code: the country, not a town or a state.
-                m.readings = [r for r in m.readings if r.origin not in ("postal", "sub_code")
-                              and r.place.kind != "city"]
+                m.readings = [
+                    r
+                    for r in m.readings
+                    if r.origin not in ("postal", "sub_code") and r.place.kind != "city"
+                ]
             if any(r.place.kind in ("region", "area") for r in m.readings):
-                m.readings = [r for r in m.readings if r.place.kind != "city" or r.place.pop >= 100_000]
-            main = max((r.place.pop for r in m.readings if r.place.kind == "city" and r.origin == "name"),
-                       default=0)
+                m.readings = [
+                    r for r in m.readings if r.place.kind != "city" or r.place.pop >= 100_000
+                ]
+            main = max(
+                (r.place.pop for r in m.readings if r.place.kind == "city" and r.origin == "name"),
+                default=0,
+            )
             if main >= 100_000:
                 # A large place called exactly this outweighs places that only carry the
                 # name as a variant or former name (Islamabad, not Chittagong's old name),
                 # and a country whose name this is only in another language (Salvador, Bahia).
-                m.readings = [replace(r, weight=r.weight * 0.2) if (
-                    r.origin in ("alt", "short") and r.place.kind == "city"
-                    or r.origin == "translation" and r.place.kind == "country" and main >= 500_000)
-                    else r for r in m.readings]
+                m.readings = [
+                    replace(r, weight=r.weight * 0.2)
+                    if (
+                        (r.origin in ("alt", "short") and r.place.kind == "city")
+                        or (
+                            r.origin == "translation"
+                            and r.place.kind == "country"
+                            and main >= 500_000
+                        )
+                    )
+                    else r
+                    for r in m.readings
+                ]
             if any(r.origin == "alias" for r in m.readings):
                 # A curated nickname beats a code of the same letters (KL, LA, DC).
-                m.readings = [r for r in m.readings if r.origin not in ("code2", "code3", "postal", "sub_code")]
+                m.readings = [
+                    r
+                    for r in m.readings
+                    if r.origin not in ("code2", "code3", "postal", "sub_code")
+                ]
             if len(mentions) > 1:
-                m.readings = [r for r in m.readings
-                              if not (r.place.kind == "city" and r.origin in ("alt", "short")
-                                      and r.place.pop < 15_000)]
+                m.readings = [
+                    r
+                    for r in m.readings
+                    if not (
+                        r.place.kind == "city"
+                        and r.origin in ("alt", "short")
+                        and r.place.pop < 15_000
+                    )
+                ]
         return [m for m in mentions if m.readings]
 
     # -- decision -----------------------------------------------------------
@@ -361,10 +461,17 @@ class Resolver:
                 continue
             g = groups[-1]
             gcountries = g.countries() | {SOVEREIGN.get(c, c) for c in g.countries()}
-            container = [r for r in m.readings if _is_container_reading(r) and r.place.cc in gcountries]
+            container = [
+                r for r in m.readings if _is_container_reading(r) and r.place.cc in gcountries
+            ]
             if container and m.source != "flag":
-                sub_ok = [r for r in container if r.place.kind != "subdivision" or not g.has_point() or any(
-                    p.place.sub == r.place.sub for p in g.readings if p.place.kind == "city")]
+                sub_ok = [
+                    r
+                    for r in container
+                    if r.place.kind != "subdivision"
+                    or not g.has_point()
+                    or any(p.place.sub == r.place.sub for p in g.readings if p.place.kind == "city")
+                ]
                 if sub_ok:
                     m.readings = sub_ok
                     g.mentions.append(m)
@@ -379,11 +486,16 @@ class Resolver:
             groups.append(_Group([m]))
         return groups, qualifiers
 
-    def _group_dist(self, g: _Group, qualifiers: list[Mention]) -> tuple[dict[str, float], list[list[Reading]]]:
+    def _group_dist(
+        self, g: _Group, qualifiers: list[Mention]
+    ) -> tuple[dict[str, float], list[list[Reading]]]:
         """Country distribution of one place, and each mention's consistent readings."""
         mentions = g.mentions + qualifiers
-        containers = [m for m in mentions if all(_is_container_reading(r) or r.place.kind == "region"
-                                                 for r in m.readings)]
+        containers = [
+            m
+            for m in mentions
+            if all(_is_container_reading(r) or r.place.kind == "region" for r in m.readings)
+        ]
         allowed_cc: set[str] | None = None
         allowed_sub: set[str] = set()
         for m in containers:
@@ -443,7 +555,9 @@ class Resolver:
         # A nationality word next to a place is who the person is, not where
         # ("proud Brazilian in Lisbon"): it qualifies, it does not add a place.
         if len(dists) > 1:
-            placed = [t for t in dists if not all(r.origin == "adjective" for rs in t[2] for r in rs)]
+            placed = [
+                t for t in dists if not all(r.origin == "adjective" for rs in t[2] for r in rs)
+            ]
             dists = placed or dists
         # A part that could be anywhere ("Centro": a region in a dozen countries)
         # says nothing next to a part that is clear.
@@ -452,29 +566,46 @@ class Resolver:
         # Drop weak stray places (a word that happens to be a town's name) when
         # the rest of the text names a country or a larger place.
         if len(dists) > 1:
-            strong = [t for t in dists if (max(r.place.pop for rs in t[2] for r in rs) >= 20000
-                      or any(_is_container_reading(r) for rs in t[2] for r in rs))
-                      and not all(m.source == "fuzzy" for m in t[0].mentions)]
+            strong = [
+                t
+                for t in dists
+                if (
+                    max(r.place.pop for rs in t[2] for r in rs) >= 20000
+                    or any(_is_container_reading(r) for rs in t[2] for r in rs)
+                )
+                and not all(m.source == "fuzzy" for m in t[0].mentions)
+            ]
             dists = strong or dists
         countries = set().union(*(d.keys() for _, d, _ in dists))
         joint = {c: math.prod(d.get(c, 0.0) for _, d, _ in dists) for c in countries}
         total = sum(joint.values())
         bests = [max(d, key=lambda c: (d[c], c)) for _, d, _ in dists]
         distinct = sorted(set(bests), key=bests.index)
-        multi_score = math.prod(max(d.values()) for _, d, _ in dists) * MULTI_PENALTY ** (len(distinct) - 1)
+        multi_score = math.prod(max(d.values()) for _, d, _ in dists) * MULTI_PENALTY ** (
+            len(distinct) - 1
+        )
         top = max(joint, key=lambda c: (joint[c], c)) if total > 0 else ""
         if len(distinct) > 1 and (total <= 0 or multi_score > joint[top]):
             cands = [self._candidate(c, kept, d[c]) for (_, d, kept), c in zip(dists, bests)]
-            return Resolution(Status.REVIEW, Reason.SEVERAL_COUNTRIES, candidates=cands[:5],
-                              evidence={c: round(v, 4) for c, v in sorted(joint.items())} if total else {})
+            return Resolution(
+                Status.REVIEW,
+                Reason.SEVERAL_COUNTRIES,
+                candidates=cands[:5],
+                evidence={c: round(v, 4) for c, v in sorted(joint.items())} if total else {},
+            )
         p = joint[top] / total
-        evidence = {c: round(v / total, 4) for c, v in sorted(joint.items(), key=lambda t: -t[1])[:5]
-                    if v / total >= 0.005}
+        evidence = {
+            c: round(v / total, 4)
+            for c, v in sorted(joint.items(), key=lambda t: -t[1])[:5]
+            if v / total >= 0.005
+        }
         res = Resolution(Status.MATCHED, Reason.CITY, country=top, evidence=evidence)
         self._fill(res, query, dists, top, qualifiers)
         res.score = self._score(p, res, query, dists)
-        res.candidates = [self._candidate(c, [r for _, _, kept in dists for r in kept], evidence[c])
-                          for c in evidence]
+        res.candidates = [
+            self._candidate(c, [r for _, _, kept in dists for r in kept], evidence[c])
+            for c in evidence
+        ]
         return res
 
     @staticmethod
@@ -483,11 +614,15 @@ class Resolver:
         cities = [r for r in flat if r.place.kind == "city" and r.place.cc == cc]
         best = max(cities, key=lambda r: r.weight, default=None)
         if best:
-            return Candidate(cc, best.place.sub, best.place.name, best.place.lat, best.place.lon, round(score, 4))
+            return Candidate(
+                cc, best.place.sub, best.place.name, best.place.lat, best.place.lon, round(score, 4)
+            )
         subs = {r.place.sub for r in flat if r.place.kind == "subdivision" and r.place.cc == cc}
         return Candidate(cc, subs.pop() if len(subs) == 1 else "", "", None, None, round(score, 4))
 
-    def _fill(self, res: Resolution, query: Query, dists, top: str, qualifiers: list[Mention]) -> None:
+    def _fill(
+        self, res: Resolution, query: Query, dists, top: str, qualifiers: list[Mention]
+    ) -> None:
         """Subdivision, city and reason for a single-country answer."""
         subs_named: set[str] = set()
         points: list[Reading] = []
@@ -501,18 +636,30 @@ class Resolver:
                 sources.add(m.source)
                 cont = [r for r in rs_c if r.place.kind in ("subdivision", "area") and r.place.sub]
                 heaviest_here = max(rs_c, key=lambda r: r.weight, default=None)
-                if cont and all(_is_container_reading(r) for r in rs) and heaviest_here is not None \
-                        and heaviest_here.place.kind != "country":
+                if (
+                    cont
+                    and all(_is_container_reading(r) for r in rs)
+                    and heaviest_here is not None
+                    and heaviest_here.place.kind != "country"
+                ):
                     # "Mexico" as a qualifier is the country, not also the State of Mexico.
                     subs_named |= {r.place.sub for r in cont}
                 point, split = self._point(rs_c)
                 if split:
                     undetermined = True
                     continue
-                if point is None and len(dists) == 1 and heaviest_here is not None \
-                        and heaviest_here.place.kind == "subdivision":
-                    subs_named |= {r.place.sub for r in rs_c if r.place.kind == "subdivision"
-                                   and r.origin in ("name", "translation", "alias", "postal")}
+                if (
+                    point is None
+                    and len(dists) == 1
+                    and heaviest_here is not None
+                    and heaviest_here.place.kind == "subdivision"
+                ):
+                    subs_named |= {
+                        r.place.sub
+                        for r in rs_c
+                        if r.place.kind == "subdivision"
+                        and r.origin in ("name", "translation", "alias", "postal")
+                    }
                 if point is not None:
                     group_points.append(point)
                     if len({r.place.cc for r in rs if r.place.kind == "city"}) > 1:
@@ -559,15 +706,29 @@ class Resolver:
         elif "postcode" in sources:
             res.reason = Reason.POSTCODE
         elif heaviest is not None and heaviest.place.kind == "country":
-            res.reason = (Reason.COUNTRY_CODE if heaviest.origin in ("code2", "code3") else Reason.COUNTRY_NAME)
+            res.reason = (
+                Reason.COUNTRY_CODE
+                if heaviest.origin in ("code2", "code3")
+                else Reason.COUNTRY_NAME
+            )
         elif heaviest is not None and heaviest.place.kind == "area":
             res.reason = Reason.NAMED_AREA
         elif heaviest is not None and heaviest.origin == "alias":
             res.reason = Reason.NICKNAME
         else:
             res.reason = Reason.SUBDIVISION
-        if len(res.evidence) > 1 and max(res.evidence.values()) < 0.9 and res.reason in (
-                Reason.SUBDIVISION, Reason.COUNTRY_NAME, Reason.COUNTRY_CODE, Reason.NAMED_AREA, Reason.CITY):
+        if (
+            len(res.evidence) > 1
+            and max(res.evidence.values()) < 0.9
+            and res.reason
+            in (
+                Reason.SUBDIVISION,
+                Reason.COUNTRY_NAME,
+                Reason.COUNTRY_CODE,
+                Reason.NAMED_AREA,
+                Reason.CITY,
+            )
+        ):
             res.reason = Reason.AMBIGUOUS
 
     @staticmethod
@@ -590,8 +751,12 @@ class Resolver:
         countries = [r for r in readings if r.place.kind == "country" and r.origin != "translation"]
         if countries and best.place.pop < 0.5 * max(c.place.pop for c in countries):
             return None, False
-        subs = [r for r in readings if r.place.kind in ("subdivision", "area")
-                and r.origin in ("name", "translation", "alias")]
+        subs = [
+            r
+            for r in readings
+            if r.place.kind in ("subdivision", "area")
+            and r.origin in ("name", "translation", "alias")
+        ]
         if not subs:
             return best, False
         if best.origin == "short":
@@ -611,7 +776,9 @@ class Resolver:
     def _score(p: float, res: Resolution, query: Query, dists) -> float:
         """Uncalibrated evidence score in (0, 1)."""
         score = p
-        all_readings = [r for _, _, kept in dists for rs in kept for r in rs if r.place.cc == res.country]
+        all_readings = [
+            r for _, _, kept in dists for rs in kept for r in rs if r.place.cc == res.country
+        ]
         sims = [r.similarity for r in all_readings if r.similarity < 1.0]
         if sims:
             score *= min(sims) ** 1.5
@@ -622,16 +789,27 @@ class Resolver:
         for pi, part in enumerate(query.parts):
             words = [t.key for t in part.tokens if t.key not in STOPWORDS]
             if pi in parts_with:
-                used = sum(len(m.text.split()) for g, _, _ in dists for m in g.mentions if m.part == pi)
+                used = sum(
+                    len(m.text.split()) for g, _, _ in dists for m in g.mentions if m.part == pi
+                )
                 score *= 0.85 ** min(max(0, len(words) - used), 3)
             elif words and not part.street:
                 score *= 0.95
         # A bare small place met only by an alternate name is weak evidence.
         best = max(all_readings, key=lambda r: r.weight, default=None)
-        if best and best.place.kind == "city" and len(dists) == 1 and len(dists[0][0].mentions) == 1:
+        if (
+            best
+            and best.place.kind == "city"
+            and len(dists) == 1
+            and len(dists[0][0].mentions) == 1
+        ):
             if best.origin == "alt" and best.place.pop < 15_000:
                 score *= 0.75
             score *= min(1.0, 0.3 + 0.15 * math.log10(max(best.place.pop, 1)))
-        if best and best.origin == "adjective" and all(r.origin == "adjective" for r in all_readings):
+        if (
+            best
+            and best.origin == "adjective"
+            and all(r.origin == "adjective" for r in all_readings)
+        ):
             score *= 0.6
         return max(1e-4, min(0.9999, score))

@@ -18,21 +18,37 @@ import unicodedata
 from dataclasses import dataclass, field
 from functools import lru_cache
 
-__all__ = ["Token", "Part", "Query", "normalize", "normalize_key", "fold", "NoisePhrases"]
+__all__ = ["NoisePhrases", "Part", "Query", "Token", "fold", "normalize", "normalize_key"]
 
 # Regional indicator symbols U+1F1E6..U+1F1FF map to A..Z (Unicode TR51, flags).
 _RI_BASE = 0x1F1E6
 # Subdivision flags: U+1F3F4 WAVING BLACK FLAG, tag letters U+E0061..U+E007A,
 # CANCEL TAG U+E007F (Unicode TR51, emoji tag sequences).
-_BLACK_FLAG = "\U0001F3F4"
-_TAG_CANCEL = "\U000E007F"
+_BLACK_FLAG = "\U0001f3f4"
+_TAG_CANCEL = "\U000e007f"
 
 # Letters that do not decompose under NFD but readers treat as accented forms
 # (common practice in search folding).
 _SPECIAL_FOLD = {
-    "ø": "o", "æ": "ae", "œ": "oe", "ł": "l", "đ": "d", "ð": "d", "þ": "th",
-    "ı": "i", "ħ": "h", "ŧ": "t", "ŋ": "n", "ſ": "s", "ß": "ss",
-    "’": "'", "‘": "'", "ʻ": "'", "ʼ": "'", "`": "'", "´": "'",
+    "ø": "o",
+    "æ": "ae",
+    "œ": "oe",
+    "ł": "l",
+    "đ": "d",
+    "ð": "d",
+    "þ": "th",
+    "ı": "i",
+    "ħ": "h",
+    "ŧ": "t",
+    "ŋ": "n",
+    "ſ": "s",
+    "ß": "ss",
+    "’": "'",
+    "‘": "'",
+    "ʻ": "'",
+    "ʼ": "'",
+    "`": "'",
+    "´": "'",
 }
 
 # Hard separators: always split a string into parts.
@@ -46,9 +62,47 @@ POSTCODE_FORMATS = {
 }
 _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _STREET_WORDS = frozenset(
-    "street rd road ave avenue blvd boulevard lane ln dr drive apt suite unit plot floor "
-    "rua av avenida calle carrer via viale piazza rue chemin allee strasse str ul ulica prospekt "
-    "block sector ku chome marg flat box".split()
+    [
+        "street",
+        "rd",
+        "road",
+        "ave",
+        "avenue",
+        "blvd",
+        "boulevard",
+        "lane",
+        "ln",
+        "dr",
+        "drive",
+        "apt",
+        "suite",
+        "unit",
+        "plot",
+        "floor",
+        "rua",
+        "av",
+        "avenida",
+        "calle",
+        "carrer",
+        "via",
+        "viale",
+        "piazza",
+        "rue",
+        "chemin",
+        "allee",
+        "strasse",
+        "str",
+        "ul",
+        "ulica",
+        "prospekt",
+        "block",
+        "sector",
+        "ku",
+        "chome",
+        "marg",
+        "flat",
+        "box",
+    ]
 )
 # "St" ends a street name ("Baggot St") but starts a saint's name ("St Helier").
 _STREET_SUFFIX_ONLY = frozenset({"st", "str"})
@@ -108,7 +162,11 @@ def extract_flags(text: str) -> tuple[str, list[str]]:
     while i < n:
         ch = text[i]
         o = ord(ch)
-        if _RI_BASE <= o <= _RI_BASE + 25 and i + 1 < n and _RI_BASE <= ord(text[i + 1]) <= _RI_BASE + 25:
+        if (
+            _RI_BASE <= o <= _RI_BASE + 25
+            and i + 1 < n
+            and _RI_BASE <= ord(text[i + 1]) <= _RI_BASE + 25
+        ):
             codes.append(chr(o - _RI_BASE + 65) + chr(ord(text[i + 1]) - _RI_BASE + 65))
             out.append(" ")
             i += 2
@@ -134,16 +192,18 @@ def extract_flags(text: str) -> tuple[str, list[str]]:
 
 @dataclass(frozen=True)
 class Token:
-    key: str   # folded form used for lookups
+    key: str  # folded form used for lookups
     orig: str  # as typed (after NFKC), keeps case and accents
 
 
 @dataclass(frozen=True)
 class Part:
     tokens: tuple[Token, ...]
-    full_key: str = ""     # the folded part before noise removal ("bay area")
-    street: bool = False   # a street line of an address: not matched against places
-    lead_key: str = ""     # the folded part with only its leading noise removed ("the bay area" → "bay area")
+    full_key: str = ""  # the folded part before noise removal ("bay area")
+    street: bool = False  # a street line of an address: not matched against places
+    lead_key: str = (
+        ""  # the folded part with only its leading noise removed ("the bay area" → "bay area")
+    )
 
     @property
     def key(self) -> str:
@@ -153,10 +213,10 @@ class Part:
 @dataclass(frozen=True)
 class Query:
     raw: str
-    key: str                       # cache key: canonical text (see normalize_key)
-    folded: str                    # the whole text folded for lookups, flags and emoji out
-    parts: tuple[Part, ...]        # after noise removal
-    flags: tuple[str, ...] = ()    # ISO codes from flag emoji
+    key: str  # cache key: canonical text (see normalize_key)
+    folded: str  # the whole text folded for lookups, flags and emoji out
+    parts: tuple[Part, ...]  # after noise removal
+    flags: tuple[str, ...] = ()  # ISO codes from flag emoji
     postcodes: tuple[str, ...] = ()
     streetlike: bool = False
     had_noise: bool = False
@@ -202,7 +262,7 @@ def _clean_text(raw: str) -> tuple[str, list[str]]:
     """Flags out (returned as ISO codes), emoji and stray symbols to spaces."""
     text, flags = extract_flags(raw)
     text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
-    for ch in "#@\"!?*~":
+    for ch in '#@"!?*~':
         text = text.replace(ch, " ")
     return text, flags
 
@@ -227,11 +287,13 @@ def normalize_key(raw: str) -> str:
     else:
         text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
         caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
-        folded = unicodedata.normalize("NFKC", text.casefold())  # NFKC again: casefold may decompose
+        folded = unicodedata.normalize(
+            "NFKC", text.casefold()
+        )  # NFKC again: casefold may decompose
     if caps and len(folded) == len(text):
         chars = list(folded)
         for start, word in caps.items():
-            chars[start:start + len(word)] = word
+            chars[start : start + len(word)] = word
         folded = "".join(chars)
     return _WS.sub(" ", folded).strip()
 
@@ -259,7 +321,8 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
         tokens: list[Token] = []
         words = folded.split()
         street = any(w in _STREET_WORDS for w in words) or any(
-            w in _STREET_SUFFIX_ONLY for w in words[1:])
+            w in _STREET_SUFFIX_ONLY for w in words[1:]
+        )
         streetlike = streetlike or street
         # Align kept folded words with their typed forms.
         orig_words = [w for w in _TOKEN.findall(chunk)]
@@ -287,5 +350,14 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
         if tokens:
             parts.append(Part(tuple(tokens), folded, street, noise.strip_prefix(folded)))
     has_letters = any(c.isalpha() for c in key) or bool(flags)
-    return Query(raw, key, fold(text), tuple(parts), tuple(flags), tuple(postcodes), streetlike, had_noise,
-                 has_letters)
+    return Query(
+        raw,
+        key,
+        fold(text),
+        tuple(parts),
+        tuple(flags),
+        tuple(postcodes),
+        streetlike,
+        had_noise,
+        has_letters,
+    )

@@ -20,22 +20,43 @@ from pathlib import Path
 import polars as pl
 import pycountry
 
-from .cache import Cache
-from .errors import InputError
-from .formats import open_source, read_columns, read_header
-from .normalize import fold, normalize_key
-from .resolver import Resolver
+from ..batch.cache import Cache
+from ..errors import InputError
+from ..batch.formats import open_source, read_columns, read_header
+from ..resolve.normalize import fold, normalize_key
+from ..resolve.resolver import Resolver
 
-__all__ = ["QUEUE_COLUMNS", "DECISION_COLUMNS", "neutralise", "restore", "export_queue", "apply_decisions",
-           "ApplyReport", "Problem", "undo"]
+__all__ = [
+    "DECISION_COLUMNS",
+    "QUEUE_COLUMNS",
+    "ApplyReport",
+    "Problem",
+    "apply_decisions",
+    "export_queue",
+    "neutralise",
+    "restore",
+    "undo",
+]
 
 DECISION_COLUMNS = ["decision_country", "decision_subdivision", "decision_city", "decision_note"]
-QUEUE_COLUMNS = ["text", "rows", "impact", "guess_country", "guess_subdivision", "guess_city", "confidence",
-                 "reason", "alternatives", *DECISION_COLUMNS]
+QUEUE_COLUMNS = [
+    "text",
+    "rows",
+    "impact",
+    "guess_country",
+    "guess_subdivision",
+    "guess_city",
+    "confidence",
+    "reason",
+    "alternatives",
+    *DECISION_COLUMNS,
+]
 NOT_A_PLACE = "not_a_place"
 # Characters that make a spreadsheet read a cell as a formula (OWASP, CSV injection).
 _FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
-_COORDS = re.compile(r"^(?P<name>.*?)\s*\(?\s*(?P<lat>-?\d+(?:\.\d+)?)\s*[,;]\s*(?P<lon>-?\d+(?:\.\d+)?)\s*\)?\s*$")
+_COORDS = re.compile(
+    r"^(?P<name>.*?)\s*\(?\s*(?P<lat>-?\d+(?:\.\d+)?)\s*[,;]\s*(?P<lon>-?\d+(?:\.\d+)?)\s*\)?\s*$"
+)
 
 
 def neutralise(value: str) -> str:
@@ -50,37 +71,61 @@ def neutralise(value: str) -> str:
 
 def restore(value: str) -> str:
     """Undo ``neutralise``."""
-    if len(value) > 1 and value[0] == "'" and (value[1:].startswith(_FORMULA_START) or value[1] == "'"):
+    if (
+        len(value) > 1
+        and value[0] == "'"
+        and (value[1:].startswith(_FORMULA_START) or value[1] == "'")
+    ):
         return value[1:]
     return value
 
 
-def _read_cleaned(path: str | Path, column: str | None, prefix: str, cache: Cache) -> tuple[pl.DataFrame, str]:
+def _read_cleaned(
+    path: str | Path, column: str | None, prefix: str, cache: Cache
+) -> tuple[pl.DataFrame, str]:
     source = open_source(path)
     try:
         header = read_header(source)
-        needed = [prefix + f for f in ("country", "subdivision", "city", "confidence", "reason", "status")]
+        needed = [
+            prefix + f for f in ("country", "subdivision", "city", "confidence", "reason", "status")
+        ]
         missing = [c for c in needed if c not in header]
         if missing:
-            raise InputError(f"{source.name} has no {', '.join(missing)} column(s): it is not a cleaned file",
-                             hint="run geonorm clean on it first, and pass its output here")
+            raise InputError(
+                f"{source.name} has no {', '.join(missing)} column(s): it is not a cleaned file",
+                hint="run geonorm clean on it first, and pass its output here",
+            )
         if column is None:
             column = cache.run_column(str(Path(path).resolve()))
         if column is None:
-            guesses = [h for h in header if fold(h) in ("location", "loc", "place", "city", "address", "where")]
+            guesses = [
+                h
+                for h in header
+                if fold(h) in ("location", "loc", "place", "city", "address", "where")
+            ]
             column = guesses[0] if len(guesses) == 1 else None
         if column is None or column not in header:
-            raise InputError(f"cannot tell which column of {source.name} holds the location text",
-                             hint=f"pass --column, one of: {', '.join(h for h in header if h not in needed)}")
+            raise InputError(
+                f"cannot tell which column of {source.name} holds the location text",
+                hint=f"pass --column, one of: {', '.join(h for h in header if h not in needed)}",
+            )
         frame = read_columns(source, [column, *needed])
         return frame.group_by([column, *needed]).len().rename({column: "__text"}), column
     finally:
         source.cleanup()
 
 
-def export_queue(cleaned: str | Path, out: str | Path, *, column: str | None = None, below: float | None = None,
-                 top: int | None = None, prefix: str = "geo_", cache: Cache | None = None,
-                 resolver: Resolver | None = None) -> int:
+def export_queue(
+    cleaned: str | Path,
+    out: str | Path,
+    *,
+    column: str | None = None,
+    below: float | None = None,
+    top: int | None = None,
+    prefix: str = "geo_",
+    cache: Cache | None = None,
+    resolver: Resolver | None = None,
+) -> int:
     """Write the review queue of a cleaned file; returns the number of lines."""
     cache = cache or Cache()
     frame, column = _read_cleaned(cleaned, column, prefix, cache)
@@ -90,7 +135,9 @@ def export_queue(cleaned: str | Path, out: str | Path, *, column: str | None = N
     texts: dict[str, Counter[str]] = {}
     for row in frame.iter_rows(named=True):
         status, conf = row[p + "status"], float(row[p + "confidence"] or 0)
-        doubtful = status in ("review", "unmatched") or (status == "matched" and below is not None and conf < below)
+        doubtful = status in ("review", "unmatched") or (
+            status == "matched" and below is not None and conf < below
+        )
         if not doubtful:
             continue
         text = row["__text"] if row["__text"] is not None else ""
@@ -107,28 +154,43 @@ def export_queue(cleaned: str | Path, out: str | Path, *, column: str | None = N
         doubt = 0.1 if row[p + "reason"] == "world_region" else 1 - conf
         res = resolver.resolve(key)
         alts = [c for c in res.candidates if c.country != row[p + "country"]][:3]
-        lines.append({
-            "text": text, "rows": entry["rows"], "impact": round(entry["rows"] * doubt, 2),
-            "guess_country": row[p + "country"] or "", "guess_subdivision": row[p + "subdivision"] or "",
-            "guess_city": row[p + "city"] or "", "confidence": f"{conf:.3f}" if row[p + "country"] else "",
-            "reason": row[p + "reason"] or "",
-            "alternatives": "; ".join(f"{c.label()} ({c.score:.2f})" for c in alts),
-            **dict.fromkeys(DECISION_COLUMNS, ""), "__key": key,
-        })
+        lines.append(
+            {
+                "text": text,
+                "rows": entry["rows"],
+                "impact": round(entry["rows"] * doubt, 2),
+                "guess_country": row[p + "country"] or "",
+                "guess_subdivision": row[p + "subdivision"] or "",
+                "guess_city": row[p + "city"] or "",
+                "confidence": f"{conf:.3f}" if row[p + "country"] else "",
+                "reason": row[p + "reason"] or "",
+                "alternatives": "; ".join(f"{c.label()} ({c.score:.2f})" for c in alts),
+                **dict.fromkeys(DECISION_COLUMNS, ""),
+                "__key": key,
+            }
+        )
     lines.sort(key=lambda d: (-d["impact"], -d["rows"], d["text"]))
     if top is not None:
         lines = lines[:top]
     try:
         with open(out, "w", encoding="utf-8", newline="") as fh:
-            writer = csv.writer(fh, lineterminator="\n", quoting=csv.QUOTE_ALL)  # a lone \r stays inside quotes
+            writer = csv.writer(
+                fh, lineterminator="\n", quoting=csv.QUOTE_ALL
+            )  # a lone \r stays inside quotes
             writer.writerow(QUEUE_COLUMNS)
             for d in lines:
                 writer.writerow([neutralise(str(d[c])) for c in QUEUE_COLUMNS])
     except OSError as exc:
-        raise InputError(f"cannot write {out} ({exc.strerror})", hint="check the folder exists and is writable") \
-            from exc
+        raise InputError(
+            f"cannot write {out} ({exc.strerror})", hint="check the folder exists and is writable"
+        ) from exc
     now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
-    cache.put_queue([{"key": d["__key"], "text": d["text"], "exported_at": now, "file": str(out)} for d in lines])
+    cache.put_queue(
+        [
+            {"key": d["__key"], "text": d["text"], "exported_at": now, "file": str(out)}
+            for d in lines
+        ]
+    )
     return len(lines)
 
 
@@ -156,7 +218,11 @@ def _country(code: str) -> str | None:
     code = code.strip().upper()
     if code == "XK":
         return code
-    c = pycountry.countries.get(alpha_2=code) if len(code) == 2 else pycountry.countries.get(alpha_3=code)
+    c = (
+        pycountry.countries.get(alpha_2=code)
+        if len(code) == 2
+        else pycountry.countries.get(alpha_3=code)
+    )
     return c.alpha_2 if c else None
 
 
@@ -165,44 +231,72 @@ def _check(row: dict, line: int, resolver: Resolver) -> tuple[dict | None, Probl
     sub = row["decision_subdivision"].strip().upper()
     city = row["decision_city"].strip()
     note = row["decision_note"].strip()
-    decision = {"not_a_place": 0, "country": "", "subdivision": "", "city": "", "lat": None, "lon": None,
-                "geonameid": None, "note": note}
+    decision = {
+        "not_a_place": 0,
+        "country": "",
+        "subdivision": "",
+        "city": "",
+        "lat": None,
+        "lon": None,
+        "geonameid": None,
+        "note": note,
+    }
     if raw_country.lower().replace(" ", "_") == NOT_A_PLACE:
         if sub or city:
-            return None, Problem(line, f"'{NOT_A_PLACE}' takes no subdivision or city; leave them empty")
+            return None, Problem(
+                line, f"'{NOT_A_PLACE}' takes no subdivision or city; leave them empty"
+            )
         decision["not_a_place"] = 1
         return decision, None
     if not raw_country:
-        return None, Problem(line, "a subdivision or city was given without decision_country; "
-                                   "fill in the ISO 3166-1 code (e.g. FR)")
+        return None, Problem(
+            line,
+            "a subdivision or city was given without decision_country; "
+            "fill in the ISO 3166-1 code (e.g. FR)",
+        )
     country = _country(raw_country)
     if country is None:
-        return None, Problem(line, f"'{raw_country}' is not an ISO 3166-1 country code; use a two-letter code "
-                                   f"such as FR, or '{NOT_A_PLACE}'")
+        return None, Problem(
+            line,
+            f"'{raw_country}' is not an ISO 3166-1 country code; use a two-letter code "
+            f"such as FR, or '{NOT_A_PLACE}'",
+        )
     decision["country"] = country
     if sub:
         s = pycountry.subdivisions.get(code=sub)
         if s is None or s.country_code != country:
-            return None, Problem(line, f"'{sub}' is not an ISO 3166-2 subdivision of {country}; "
-                                       f"use a code such as {_example_sub(country)}")
+            return None, Problem(
+                line,
+                f"'{sub}' is not an ISO 3166-2 subdivision of {country}; "
+                f"use a code such as {_example_sub(country)}",
+            )
         decision["subdivision"] = sub
     if city:
         m = _COORDS.match(city)
         if m:
             lat, lon = float(m["lat"]), float(m["lon"])
             if not (-90 <= lat <= 90 and -180 <= lon <= 180):
-                return None, Problem(line, f"coordinates ({lat}, {lon}) are out of range; write 'Name (lat, lon)' "
-                                           "with latitude -90..90 and longitude -180..180")
+                return None, Problem(
+                    line,
+                    f"coordinates ({lat}, {lon}) are out of range; write 'Name (lat, lon)' "
+                    "with latitude -90..90 and longitude -180..180",
+                )
             decision.update(city=m["name"].strip(), lat=lat, lon=lon)
         else:
-            places = [h.place for h in resolver.index.lookup(fold(city))
-                      if h.place.kind == "city" and h.place.cc == country]
+            places = [
+                h.place
+                for h in resolver.index.lookup(fold(city))
+                if h.place.kind == "city" and h.place.cc == country
+            ]
             top_sub = resolver.index.subdivisions.get(sub)
             if sub and top_sub is not None:
                 places = [p for p in places if p.sub == sub] or places
             if not places:
-                return None, Problem(line, f"no city called '{city}' in {country} in the place index; check the "
-                                           "spelling, or give coordinates as 'Name (lat, lon)'")
+                return None, Problem(
+                    line,
+                    f"no city called '{city}' in {country} in the place index; check the "
+                    "spelling, or give coordinates as 'Name (lat, lon)'",
+                )
             best = max(places, key=lambda p: p.pop)
             decision.update(city=best.name, lat=best.lat, lon=best.lon, geonameid=best.gid)
             if not sub and best.sub:
@@ -215,30 +309,41 @@ def _example_sub(country: str) -> str:
     return subs[0] if subs else f"{country}-XX"
 
 
-def apply_decisions(queue: str | Path, *, cache: Cache | None = None, resolver: Resolver | None = None,
-                    dry_run: bool = False) -> ApplyReport:
+def apply_decisions(
+    queue: str | Path,
+    *,
+    cache: Cache | None = None,
+    resolver: Resolver | None = None,
+    dry_run: bool = False,
+) -> ApplyReport:
     """Validate a filled-in queue and store its valid decisions (one transaction)."""
     cache = cache or Cache()
     resolver = resolver or Resolver()
     report = ApplyReport(dry_run=dry_run)
     path = Path(queue)
     if not path.exists():
-        raise InputError(f"queue file {path} does not exist", hint="pass the CSV written by geonorm review export")
+        raise InputError(
+            f"queue file {path} does not exist",
+            hint="pass the CSV written by geonorm review export",
+        )
     try:
         with open(path, encoding="utf-8-sig", newline="") as fh:
             reader = csv.DictReader(fh)
             missing = [c for c in ["text", *DECISION_COLUMNS] if c not in (reader.fieldnames or [])]
             if missing:
-                raise InputError(f"{path} has no {', '.join(missing)} column(s)",
-                                 hint="keep the columns of the exported queue; only fill in the decision_ ones")
+                raise InputError(
+                    f"{path} has no {', '.join(missing)} column(s)",
+                    hint="keep the columns of the exported queue; only fill in the decision_ ones",
+                )
             rows = []
             start = reader.line_num + 1
             for row in reader:
                 rows.append((start, {k: restore(v or "") for k, v in row.items() if k}))
                 start = reader.line_num + 1
     except UnicodeDecodeError as exc:
-        raise InputError(f"{path} is not UTF-8 text", hint="save the queue as 'CSV UTF-8' from your spreadsheet") \
-            from exc
+        raise InputError(
+            f"{path} is not UTF-8 text", hint="save the queue as 'CSV UTF-8' from your spreadsheet"
+        ) from exc
     wanted: list[tuple[int, str, dict]] = []
     for line, row in rows:
         if not any(row.get(c, "").strip() for c in DECISION_COLUMNS[:3]):
@@ -255,13 +360,20 @@ def apply_decisions(queue: str | Path, *, cache: Cache | None = None, resolver: 
     to_store: dict[str, dict] = {}
     for line, key, decision in wanted:
         if key not in queued:
-            report.problems.append(Problem(line, f"the text {decision['text']!r} is not in an exported queue; "
-                                                 "do not edit the text column (export the queue again)"))
+            report.problems.append(
+                Problem(
+                    line,
+                    f"the text {decision['text']!r} is not in an exported queue; "
+                    "do not edit the text column (export the queue again)",
+                )
+            )
             continue
         same = existing.get(key)
         fields = ("country", "subdivision", "city", "lat", "lon", "not_a_place", "note")
-        if same and all(same[f] == decision[f] or (same[f] in (None, "") and decision[f] in (None, ""))
-                        for f in fields):
+        if same and all(
+            same[f] == decision[f] or (same[f] in (None, "") and decision[f] in (None, ""))
+            for f in fields
+        ):
             report.unchanged += 1
             continue
         report.changed += bool(same)
@@ -279,5 +391,8 @@ def undo(text: str, *, cache: Cache | None = None) -> str:
     cache = cache or Cache()
     key = normalize_key(text)
     if not cache.delete_override(key):
-        raise InputError(f"no decision is stored for {text!r}", hint="see the stored ones with: geonorm review list")
+        raise InputError(
+            f"no decision is stored for {text!r}",
+            hint="see the stored ones with: geonorm review list",
+        )
     return key

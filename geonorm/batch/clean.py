@@ -21,7 +21,7 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from .cache import Cache
-from .errors import InputError
+from ..errors import InputError
 from .formats import (
     count_values,
     find_ragged,
@@ -31,10 +31,17 @@ from .formats import (
     set_aside,
     write_output,
 )
-from .resolution import Resolution, Status
-from .resolver import DEFAULT_ACCEPT, Resolver, apply_accept
+from ..resolve.resolution import Resolution, Status
+from ..resolve.resolver import DEFAULT_ACCEPT, Resolver, apply_accept
 
-__all__ = ["GEO_FIELDS", "CleanSummary", "clean_file", "resolve_values", "resolve_series", "geo_values"]
+__all__ = [
+    "GEO_FIELDS",
+    "CleanSummary",
+    "clean_file",
+    "geo_values",
+    "resolve_series",
+    "resolve_values",
+]
 
 GEO_FIELDS = ("country", "subdivision", "city", "lat", "lon", "confidence", "reason", "status")
 CHUNK = 2000  # distinct strings per task and per cache commit
@@ -55,14 +62,24 @@ class CleanSummary:
 
     def to_dict(self) -> dict:
         d = asdict(self)
-        d["status_share"] = {k: round(v / self.rows, 4) if self.rows else 0.0 for k, v in self.status.items()}
+        d["status_share"] = {
+            k: round(v / self.rows, 4) if self.rows else 0.0 for k, v in self.status.items()
+        }
         return d
 
 
 def geo_values(res: Resolution) -> list:
     """The geo column values of one resolution (numbers as numbers, missing as None)."""
-    return [res.country, res.subdivision, res.city, res.lat, res.lon, round(res.confidence, 3),
-            res.reason_text, res.status.value]
+    return [
+        res.country,
+        res.subdivision,
+        res.city,
+        res.lat,
+        res.lon,
+        round(res.confidence, 3),
+        res.reason_text,
+        res.status.value,
+    ]
 
 
 # -- the process pool ------------------------------------------------------
@@ -72,7 +89,7 @@ _WORKER: Resolver | None = None
 def _worker_init(resolver: Resolver | None, index_path: str, accept: float) -> None:
     global _WORKER
     if resolver is None:  # spawn start method: open the index file again (no rebuild)
-        from .index import PlaceIndex
+        from ..resolve.index import PlaceIndex
 
         resolver = Resolver(PlaceIndex(Path(index_path)), accept=accept)
     resolver.index.reopen()
@@ -84,9 +101,15 @@ def _worker_resolve(keys: Sequence[str]) -> list[tuple[str, Resolution]]:
     return [(k, _WORKER.resolve(k)) for k in keys]
 
 
-def _resolve_misses(resolver: Resolver, misses: list[str], workers: int, cache: Cache | None, version: str,
-                    advance: Callable[[int], None]) -> dict[str, Resolution]:
-    chunks = [misses[i:i + CHUNK] for i in range(0, len(misses), CHUNK)]
+def _resolve_misses(
+    resolver: Resolver,
+    misses: list[str],
+    workers: int,
+    cache: Cache | None,
+    version: str,
+    advance: Callable[[int], None],
+) -> dict[str, Resolution]:
+    chunks = [misses[i : i + CHUNK] for i in range(0, len(misses), CHUNK)]
     fresh: dict[str, Resolution] = {}
 
     def take(pairs: list[tuple[str, Resolution]]) -> None:
@@ -105,17 +128,27 @@ def _resolve_misses(resolver: Resolver, misses: list[str], workers: int, cache: 
     method = "fork" if "fork" in mp.get_all_start_methods() else "spawn"
     ctx = mp.get_context(method)
     shared = resolver if method == "fork" else None
-    with ctx.Pool(workers, initializer=_worker_init,
-                  initargs=(shared, str(resolver.index.path), resolver.accept)) as pool:
+    with ctx.Pool(
+        workers,
+        initializer=_worker_init,
+        initargs=(shared, str(resolver.index.path), resolver.accept),
+    ) as pool:
         for pairs in pool.imap(_worker_resolve, chunks):
             take(pairs)
     return fresh
 
 
-def resolve_values(values: Iterable[object] | dict, *, resolver: Resolver | None = None,
-                   cache: Cache | None = None, accept: float | None = None, workers: int = 1,
-                   summary: CleanSummary | None = None, keyed: bool = False,
-                   on_misses: Callable[[int], Callable[[int], None]] | None = None) -> dict[str, Resolution]:
+def resolve_values(
+    values: Iterable[object] | dict,
+    *,
+    resolver: Resolver | None = None,
+    cache: Cache | None = None,
+    accept: float | None = None,
+    workers: int = 1,
+    summary: CleanSummary | None = None,
+    keyed: bool = False,
+    on_misses: Callable[[int], Callable[[int], None]] | None = None,
+) -> dict[str, Resolution]:
     """Resolve the distinct keys of ``values`` (or of a value → row-count dict).
 
     Returns key → Resolution with the accept threshold and the file prior applied.
@@ -164,9 +197,16 @@ class _Progress:
                 TimeRemainingColumn,
             )
 
-            self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
-                                TextColumn("{task.fields[rate]}"), TimeElapsedColumn(), TimeRemainingColumn(),
-                                console=Console(stderr=True), transient=True)
+            self.bar = Progress(
+                TextColumn("{task.description}"),
+                BarColumn(),
+                MofNCompleteColumn(),
+                TextColumn("{task.fields[rate]}"),
+                TimeElapsedColumn(),
+                TimeRemainingColumn(),
+                console=Console(stderr=True),
+                transient=True,
+            )
 
     def __enter__(self) -> _Progress:
         if self.bar:
@@ -192,14 +232,31 @@ class _Progress:
         return advance
 
 
-def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cache | str | Path | None = None,
-               accept: float = DEFAULT_ACCEPT, prefix: str = "geo_", resolver: Resolver | None = None,
-               encoding: str = "utf-8", separator: str | None = None, format: str | None = None,
-               input_format: str | None = None, workers: int | None = None, bad_lines: str | Path | None = None,
-               report: str | Path | None = None, show_progress: bool = False,
-               progress: Callable[[str], None] | None = None, remote=None, budget: int | None = None,
-               budget_total: int | None = None, refresh: bool = False, dry_run: bool = False,
-               transport=None) -> CleanSummary:
+def clean_file(
+    input: str | Path,
+    column: str,
+    output: str | Path,
+    *,
+    cache: Cache | str | Path | None = None,
+    accept: float = DEFAULT_ACCEPT,
+    prefix: str = "geo_",
+    resolver: Resolver | None = None,
+    encoding: str = "utf-8",
+    separator: str | None = None,
+    format: str | None = None,
+    input_format: str | None = None,
+    workers: int | None = None,
+    bad_lines: str | Path | None = None,
+    report: str | Path | None = None,
+    show_progress: bool = False,
+    progress: Callable[[str], None] | None = None,
+    remote=None,
+    budget: int | None = None,
+    budget_total: int | None = None,
+    refresh: bool = False,
+    dry_run: bool = False,
+    transport=None,
+) -> CleanSummary:
     """Clean ``column`` of ``input`` into ``output``; returns the summary.
 
     Formats: CSV, TSV, Parquet, JSON Lines (from the extension, or ``format``);
@@ -219,19 +276,25 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
         out_fmt = output_format(str(output), format, source)
         header = read_header(source)
         if column not in header:
-            raise InputError(f"column {column!r} is not in {source.name}; its columns are: {', '.join(header)}",
-                             hint=_column_hint(column, header))
+            raise InputError(
+                f"column {column!r} is not in {source.name}; its columns are: {', '.join(header)}",
+                hint=_column_hint(column, header),
+            )
         geo_names = [prefix + f for f in GEO_FIELDS]
         clash = [n for n in geo_names if n in header]
         if clash:
-            raise InputError(f"{source.name} already has the columns {', '.join(clash)}",
-                             hint="clean the original file, or choose another prefix with --prefix")
+            raise InputError(
+                f"{source.name} already has the columns {', '.join(clash)}",
+                hint="clean the original file, or choose another prefix with --prefix",
+            )
         ragged = find_ragged(source, len(header))
         if ragged and bad_lines is None:
             shown = ", ".join(str(n) for n in ragged[:10]) + (" …" if len(ragged) > 10 else "")
-            raise InputError(f"{source.name} has {len(ragged)} row(s) whose number of fields differs from the "
-                             f"header's {len(header)}, at line(s) {shown}",
-                             hint="fix those rows, or pass --bad-lines FILE to write them aside and go on")
+            raise InputError(
+                f"{source.name} has {len(ragged)} row(s) whose number of fields differs from the "
+                f"header's {len(header)}, at line(s) {shown}",
+                hint="fix those rows, or pass --bad-lines FILE to write them aside and go on",
+            )
         if ragged:
             source, summary.bad_lines = set_aside(source, len(header), Path(bad_lines))  # type: ignore[arg-type]
             say(f"set {summary.bad_lines} ragged row(s) aside in {bad_lines}")
@@ -241,22 +304,47 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
         resolver = resolver or Resolver(accept=accept, progress=say)
         workers = workers if workers is not None else (os.cpu_count() or 1)
         if workers < 1:
-            raise InputError(f"--workers must be at least 1, got {workers}", hint="use --workers 1 or more")
+            raise InputError(
+                f"--workers must be at least 1, got {workers}", hint="use --workers 1 or more"
+            )
         keys = {v: resolver.key(v) for v in counts}
         key_counts: Counter[str] = Counter()
         for v, n in counts.items():
             key_counts[keys[v]] += n
         with _Progress(show_progress) as bar:
+
             def on_misses(n: int) -> Callable[[int], None]:
-                say(f"{summary.rows:,} rows, {len(key_counts):,} distinct strings, {n:,} not in the cache")
+                say(
+                    f"{summary.rows:,} rows, {len(key_counts):,} distinct strings, {n:,} not in the cache"
+                )
                 return bar.task(f"resolving ({summary.rows:,} rows)", n)
 
-            results = resolve_values(dict(key_counts), resolver=resolver, cache=cache, accept=accept,
-                                     workers=workers, summary=summary, keyed=True, on_misses=on_misses)
+            results = resolve_values(
+                dict(key_counts),
+                resolver=resolver,
+                cache=cache,
+                accept=accept,
+                workers=workers,
+                summary=summary,
+                keyed=True,
+                on_misses=on_misses,
+            )
             if remote is not None:
                 cache = cache if isinstance(cache, Cache) else Cache()
-                _ask_remote(remote, results, key_counts, cache, resolver, accept, summary, budget=budget,
-                            budget_total=budget_total, refresh=refresh, dry_run=dry_run, transport=transport)
+                _ask_remote(
+                    remote,
+                    results,
+                    key_counts,
+                    cache,
+                    resolver,
+                    accept,
+                    summary,
+                    budget=budget,
+                    budget_total=budget_total,
+                    refresh=refresh,
+                    dry_run=dry_run,
+                    transport=transport,
+                )
                 if dry_run:
                     summary.rows, summary.output = summary.rows, ""
                     return summary
@@ -273,40 +361,69 @@ def clean_file(input: str | Path, column: str, output: str | Path, *, cache: Cac
     summary.status = {s.value: status.get(s.value, 0) for s in Status}
     summary.seconds = round(time.perf_counter() - started, 3)
     summary.output = str(output)
-    summary.versions = {"geonorm": _version(), "resolver": resolver.version,
-                        **{k: v for k, v in resolver.index.meta.items() if k.startswith(("source_", "index_"))},
-                        "index_built_at": resolver.index.meta.get("built_at", "")}
+    summary.versions = {
+        "geonorm": _version(),
+        "resolver": resolver.version,
+        **{k: v for k, v in resolver.index.meta.items() if k.startswith(("source_", "index_"))},
+        "index_built_at": resolver.index.meta.get("built_at", ""),
+    }
     if report:
         try:
-            Path(report).write_text(json.dumps(summary.to_dict(), indent=2, ensure_ascii=False) + "\n",
-                                    encoding="utf-8")
+            Path(report).write_text(
+                json.dumps(summary.to_dict(), indent=2, ensure_ascii=False) + "\n", encoding="utf-8"
+            )
         except OSError as exc:
-            raise InputError(f"cannot write the report {report} ({exc.strerror})",
-                             hint="check the folder exists and is writable") from exc
+            raise InputError(
+                f"cannot write the report {report} ({exc.strerror})",
+                hint="check the folder exists and is writable",
+            ) from exc
     return summary
 
 
-def _ask_remote(remote, results: dict[str, Resolution], key_counts: Counter[str], cache: Cache,
-                resolver: Resolver, accept: float, summary: CleanSummary, **options) -> None:
+def _ask_remote(
+    remote,
+    results: dict[str, Resolution],
+    key_counts: Counter[str],
+    cache: Cache,
+    resolver: Resolver,
+    accept: float,
+    summary: CleanSummary,
+    **options,
+) -> None:
     """Send the doubtful rest to a remote geocoder and merge its answers (see ``remote.py``)."""
     from .remote import load_adapter, merge, run_remote
-    from .resolution import Reason
+    from ..resolve.resolution import Reason
 
     adapter = load_adapter(str(remote)) if isinstance(remote, (str, Path)) else remote
     # Never a not_a_place, never a confident match, never a person's decision; nor a
     # continent or a string known to name places in several countries: no service can
     # give those one country.
-    wanted = [(k, n) for k, n in key_counts.items()
-              if k and results[k].status in (Status.REVIEW, Status.UNMATCHED)
-              and results[k].reason not in (Reason.WORLD_REGION, Reason.SEVERAL_COUNTRIES, Reason.REVIEWED)]
+    wanted = [
+        (k, n)
+        for k, n in key_counts.items()
+        if k
+        and results[k].status in (Status.REVIEW, Status.UNMATCHED)
+        and results[k].reason
+        not in (Reason.WORLD_REGION, Reason.SEVERAL_COUNTRIES, Reason.REVIEWED)
+    ]
     stats = run_remote(adapter, wanted, cache, **options)
-    summary.remote = {"provider": stats.provider, "eligible": len(wanted), "already_answered": stats.from_cache,
-                      "planned": len(stats.planned), "requests": stats.requests, "answered": stats.answered,
-                      "with_results": stats.results, "no_result": stats.no_result, "errors": stats.errors,
-                      "rejected_results": stats.rejected, "retries": stats.retries,
-                      "breaker_open": stats.breaker_open, "over_budget": stats.stopped_by_budget,
-                      "messages": stats.messages,
-                      "top_planned": [{"text": k, "rows": n} for k, n in stats.planned[:20]]}
+    summary.remote = {
+        "provider": stats.provider,
+        "eligible": len(wanted),
+        "already_answered": stats.from_cache,
+        "planned": len(stats.planned),
+        "requests": stats.requests,
+        "answered": stats.answered,
+        "with_results": stats.results,
+        "no_result": stats.no_result,
+        "errors": stats.errors,
+        "rejected_results": stats.rejected,
+        "retries": stats.retries,
+        "breaker_open": stats.breaker_open,
+        "over_budget": stats.stopped_by_budget,
+        "messages": stats.messages,
+        "top_planned": [{"text": k, "rows": n} for k, n in stats.planned[:20]],
+    }
     if options.get("dry_run"):
         return
     changed = 0
@@ -319,7 +436,7 @@ def _ask_remote(remote, results: dict[str, Resolution], key_counts: Counter[str]
 
 
 def _version() -> str:
-    from . import __version__
+    from .. import __version__
 
     return __version__
 
@@ -332,8 +449,15 @@ def _column_hint(column: str, header: list[str]) -> str:
     return near + "pass the name of the location column with --column"
 
 
-def resolve_series(values, *, accept: float = DEFAULT_ACCEPT, cache: Cache | None = None,
-                   resolver: Resolver | None = None, prefix: str = "geo_", workers: int = 1):
+def resolve_series(
+    values,
+    *,
+    accept: float = DEFAULT_ACCEPT,
+    cache: Cache | None = None,
+    resolver: Resolver | None = None,
+    prefix: str = "geo_",
+    workers: int = 1,
+):
     """Geo columns for a column of values.
 
     A polars Series gives a polars DataFrame, a pandas Series a pandas
@@ -354,4 +478,3 @@ def resolve_series(values, *, accept: float = DEFAULT_ACCEPT, cache: Cache | Non
 
         return pd.DataFrame(cols, index=values.index)
     return cols
-

@@ -6,7 +6,7 @@ from dataclasses import asdict, dataclass, field
 from enum import Enum
 from typing import Any
 
-__all__ = ["Status", "Reason", "Candidate", "Resolution", "REASON_TEXT"]
+__all__ = ["REASON_TEXT", "Candidate", "Reason", "Resolution", "Status"]
 
 
 class Status(str, Enum):
@@ -121,7 +121,26 @@ class Resolution:
         """A person's decision as a resolution: it wins over every stage."""
         if d.get("not_a_place"):
             return cls(Status.NOT_A_PLACE, Reason.REVIEWED, confidence=1.0, score=1.0)
-        return cls(Status.MATCHED, Reason.REVIEWED, d["country"], d.get("subdivision") or "", d.get("city") or "",
-                   d.get("lat"), d.get("lon"), d.get("geonameid"), 1.0, 1.0,
-                   [Candidate(d["country"], d.get("subdivision") or "", d.get("city") or "", d.get("lat"),
-                              d.get("lon"), 1.0)], {d["country"]: 1.0})
+        return cls(
+            Status.MATCHED,
+            Reason.REVIEWED,
+            d["country"],
+            d.get("subdivision") or "",
+            d.get("city") or "",
+            d.get("lat"),
+            d.get("lon"),
+            d.get("geonameid"),
+            1.0,
+            1.0,
+            [
+                Candidate(
+                    d["country"],
+                    d.get("subdivision") or "",
+                    d.get("city") or "",
+                    d.get("lat"),
+                    d.get("lon"),
+                    1.0,
+                )
+            ],
+            {d["country"]: 1.0},
+        )

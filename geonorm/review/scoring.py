@@ -15,13 +15,13 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-from .calibration import expected_calibration_error, reliability
-from .errors import InputError
-from .formats import open_source, read_columns, read_header
-from .resolution import Reason, Resolution, Status
-from .resolver import DEFAULT_ACCEPT, Resolver
+from ..resolve.calibration import expected_calibration_error, reliability
+from ..errors import InputError
+from ..batch.formats import open_source, read_columns, read_header
+from ..resolve.resolution import Reason, Resolution, Status
+from ..resolve.resolver import DEFAULT_ACCEPT, Resolver
 
-__all__ = ["ScoreReport", "score_rows", "score_file", "THRESHOLDS"]
+__all__ = ["THRESHOLDS", "ScoreReport", "score_file", "score_rows"]
 
 THRESHOLDS = (0.5, 0.6, 0.7, 0.8, 0.9, 0.95, 0.99)
 
@@ -58,8 +58,13 @@ def _called(res: Resolution, t: float) -> bool:
     return bool(res.country) and res.reason != Reason.SEVERAL_COUNTRIES and res.confidence >= t
 
 
-def score_rows(pairs: Sequence[tuple[str, Resolution]], *, accept: float = DEFAULT_ACCEPT,
-               target_precision: float | None = 0.97, truth_subdivisions: Sequence[str] | None = None) -> ScoreReport:
+def score_rows(
+    pairs: Sequence[tuple[str, Resolution]],
+    *,
+    accept: float = DEFAULT_ACCEPT,
+    target_precision: float | None = 0.97,
+    truth_subdivisions: Sequence[str] | None = None,
+) -> ScoreReport:
     """Score (true country, resolution) pairs; see the module docstring for the definitions."""
     positives = sum(1 for truth, _ in pairs if truth)
     matched = [(t, r) for t, r in pairs if r.status == Status.MATCHED]
@@ -70,45 +75,82 @@ def score_rows(pairs: Sequence[tuple[str, Resolution]], *, accept: float = DEFAU
     for th in sorted({*THRESHOLDS, accept}):
         called = [(t, r) for t, r in pairs if _called(r, th)]
         right = sum(1 for t, r in called if r.country == t)
-        table.append({"threshold": th, "called": len(called), "precision": _ratio(right, len(called)),
-                      "coverage": _ratio(right, positives)})
+        table.append(
+            {
+                "threshold": th,
+                "called": len(called),
+                "precision": _ratio(right, len(called)),
+                "coverage": _ratio(right, positives),
+            }
+        )
     given = [(t, r) for t, r in pairs if r.country]
     conf = [r.confidence for _, r in given]
     ok = [r.country == t for t, r in given]
     confusions = Counter((t or "-", r.country) for t, r in matched if r.country != t)
     report = ScoreReport(
-        rows=len(pairs), positives=positives, accept=accept, matched=len(matched), true_positives=tp,
-        precision=precision, recall=recall, f1=f1, by_threshold=table, reliability=reliability(conf, ok),
+        rows=len(pairs),
+        positives=positives,
+        accept=accept,
+        matched=len(matched),
+        true_positives=tp,
+        precision=precision,
+        recall=recall,
+        f1=f1,
+        by_threshold=table,
+        reliability=reliability(conf, ok),
         ece=expected_calibration_error(conf, ok),
-        confusions=[{"truth": a, "given": b, "rows": n} for (a, b), n in confusions.most_common(10)],
-        target_precision=target_precision)
+        confusions=[
+            {"truth": a, "given": b, "rows": n} for (a, b), n in confusions.most_common(10)
+        ],
+        target_precision=target_precision,
+    )
     if target_precision is not None:
         for step in range(0, 101):
             th = step / 100
             called = [(t, r) for t, r in pairs if _called(r, th)]
             right = sum(1 for t, r in called if r.country == t)
             if called and right / len(called) >= target_precision:
-                report.threshold_for_target, report.coverage_at_target = th, _ratio(right, positives)
+                report.threshold_for_target, report.coverage_at_target = (
+                    th,
+                    _ratio(right, positives),
+                )
                 break
     if truth_subdivisions is not None:
-        subs = [(s, r) for s, (t, r) in zip(truth_subdivisions, pairs)
-                if s and r.status == Status.MATCHED and r.country == t]
+        subs = [
+            (s, r)
+            for s, (t, r) in zip(truth_subdivisions, pairs)
+            if s and r.status == Status.MATCHED and r.country == t
+        ]
         report.subdivision_n = len(subs)
         report.subdivision_accuracy = _ratio(sum(r.subdivision == s for s, r in subs), len(subs))
     return report
 
 
-def score_file(path: str | Path, column: str, truth: str, *, truth_subdivision: str | None = None,
-               accept: float = DEFAULT_ACCEPT, target_precision: float | None = 0.97,
-               resolver: Resolver | None = None, encoding: str = "utf-8") -> ScoreReport:
+def score_file(
+    path: str | Path,
+    column: str,
+    truth: str,
+    *,
+    truth_subdivision: str | None = None,
+    accept: float = DEFAULT_ACCEPT,
+    target_precision: float | None = 0.97,
+    resolver: Resolver | None = None,
+    encoding: str = "utf-8",
+) -> ScoreReport:
     """Resolve ``column`` of a labelled file and score it against ``truth``."""
     source = open_source(path, encoding=encoding)
     try:
         header = read_header(source)
-        for name, what in ((column, "--column"), (truth, "--truth"), (truth_subdivision, "--truth-subdivision")):
+        for name, what in (
+            (column, "--column"),
+            (truth, "--truth"),
+            (truth_subdivision, "--truth-subdivision"),
+        ):
             if name is not None and name not in header:
-                raise InputError(f"column {name!r} is not in {source.name}; its columns are: {', '.join(header)}",
-                                 hint=f"pass the right name with {what}")
+                raise InputError(
+                    f"column {name!r} is not in {source.name}; its columns are: {', '.join(header)}",
+                    hint=f"pass the right name with {what}",
+                )
         frame = read_columns(source, [c for c in (column, truth, truth_subdivision) if c])
     finally:
         source.cleanup()
@@ -117,6 +159,11 @@ def score_file(path: str | Path, column: str, truth: str, *, truth_subdivision: 
     truths = [t.strip().upper() for t in frame.get_column(truth).to_list()]
     results = resolver.resolve_many(texts)
     pairs = [(t, results[x]) for t, x in zip(truths, texts)]
-    subs = ([s.strip().upper() for s in frame.get_column(truth_subdivision).to_list()]
-            if truth_subdivision else None)
-    return score_rows(pairs, accept=resolver.accept, target_precision=target_precision, truth_subdivisions=subs)
+    subs = (
+        [s.strip().upper() for s in frame.get_column(truth_subdivision).to_list()]
+        if truth_subdivision
+        else None
+    )
+    return score_rows(
+        pairs, accept=resolver.accept, target_precision=target_precision, truth_subdivisions=subs
+    )

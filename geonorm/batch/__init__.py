@@ -1,0 +1,1 @@
+"""Whole tables: file formats, the cache, the answer pipeline, the remote stage."""

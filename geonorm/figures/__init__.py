@@ -1,0 +1,1 @@
+"""Per-country figures: tallies, population, intervals and rates, the map."""

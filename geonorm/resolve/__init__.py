@@ -1,0 +1,1 @@
+"""Text to answer: normalise the text, run the cascade of stages, decide, calibrate."""

@@ -1,0 +1,1 @@
+"""People in the loop: the review queue, decisions that stick, accuracy on labelled data."""
