@@ -11,8 +11,8 @@ from .resolve.resolution import Candidate, Reason, Resolution, Status
 from .resolve.resolver import DEFAULT_ACCEPT, Resolver
 
 if TYPE_CHECKING:
-    from .batch.clean import CleanSummary, clean_file, resolve_series
     from .batch.cache import Cache
+    from .batch.clean import CleanSummary, clean_file, resolve_series
 
 __version__ = "0.1.0"
 

@@ -176,8 +176,8 @@ def clean(
     quiet: QuietOpt = False,
 ) -> None:
     """Append geo columns to every row of a table, in input order."""
-    from .batch.clean import clean_file
     from .batch.cache import Cache
+    from .batch.clean import clean_file
 
     if (budget is not None or budget_total is not None or refresh or dry_run) and remote is None:
         raise GeonormError(

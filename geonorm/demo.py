@@ -9,12 +9,12 @@ from collections.abc import Callable
 from importlib import resources
 from pathlib import Path
 
-from .batch.clean import clean_file
 from .batch.cache import Cache
+from .batch.clean import clean_file
 from .errors import InputError
 from .figures.mapping import write_map
-from .review.queue import export_queue
 from .figures.tally import tally_file, write_tally
+from .review.queue import export_queue
 
 __all__ = ["demo_file", "run_demo"]
 

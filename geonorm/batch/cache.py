@@ -20,7 +20,7 @@ from pathlib import Path
 import sqlite_utils
 
 from ..errors import CacheError
-from ..resolve.index import data_dir
+from ..paths import data_dir
 from ..resolve.resolution import Candidate, Reason, Resolution, Status
 
 __all__ = ["CACHE_SCHEMA", "Cache", "default_cache_path"]

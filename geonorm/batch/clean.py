@@ -20,8 +20,10 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-from .cache import Cache
 from ..errors import InputError
+from ..resolve.resolution import Resolution, Status
+from ..resolve.resolver import DEFAULT_ACCEPT, Resolver, apply_accept
+from .cache import Cache
 from .formats import (
     count_values,
     find_ragged,
@@ -31,8 +33,6 @@ from .formats import (
     set_aside,
     write_output,
 )
-from ..resolve.resolution import Resolution, Status
-from ..resolve.resolver import DEFAULT_ACCEPT, Resolver, apply_accept
 
 __all__ = [
     "GEO_FIELDS",
@@ -391,8 +391,8 @@ def _ask_remote(
     **options,
 ) -> None:
     """Send the doubtful rest to a remote geocoder and merge its answers (see ``remote.py``)."""
-    from .remote import load_adapter, merge, run_remote
     from ..resolve.resolution import Reason
+    from .remote import load_adapter, merge, run_remote
 
     adapter = load_adapter(str(remote)) if isinstance(remote, (str, Path)) else remote
     # Never a not_a_place, never a confident match, never a person's decision; nor a

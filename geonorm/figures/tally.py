@@ -30,8 +30,8 @@ from pathlib import Path
 import polars as pl
 import pycountry
 
-from ..errors import InputError
 from ..batch.formats import open_source, read_columns, read_header
+from ..errors import InputError
 from .population import PopulationTable, bundled_population, read_population
 from .stats import eb_gamma_prior, garwood, location_quotient
 

@@ -29,7 +29,9 @@ from importlib import metadata, resources
 from pathlib import Path
 
 from ..errors import IndexError_
+from ..paths import data_dir
 from .normalize import fold
+from .tables import GENERIC_PLACE_WORDS, SAINT_ABBREVIATIONS
 
 __all__ = [
     "INDEX_VERSION",
@@ -63,15 +65,6 @@ ORIGINS = (
 ORIGIN_ID = {o: i for i, o in enumerate(ORIGINS)}
 
 Progress = Callable[[str], None]
-
-
-def data_dir() -> Path:
-    env = os.environ.get("GEONORM_HOME")
-    if env:
-        return Path(env)
-    import platformdirs
-
-    return Path(platformdirs.user_data_dir("geonorm", appauthor=False))
 
 
 def default_index_path() -> Path:
@@ -135,73 +128,6 @@ def _good_alt_name(name: str) -> bool:
     return True
 
 
-# Words that name a part of many countries ("South", "Central", "Capital"): as the
-# name of a subdivision they would match everywhere, so they are not indexed for
-# subdivisions (common practice).
-GENERIC_PLACE_WORDS = frozenset(
-    [
-        "north",
-        "south",
-        "east",
-        "west",
-        "central",
-        "centre",
-        "center",
-        "capital",
-        "northern",
-        "southern",
-        "eastern",
-        "western",
-        "middle",
-        "upper",
-        "lower",
-        "coast",
-        "coastal",
-        "island",
-        "islands",
-        "lake",
-        "lakes",
-        "river",
-        "valley",
-        "mountain",
-        "mountains",
-        "border",
-        "northeast",
-        "northwest",
-        "southeast",
-        "southwest",
-        "north",
-        "east",
-        "north",
-        "west",
-        "south",
-        "east",
-        "south",
-        "west",
-        "the",
-        "south",
-        "the",
-        "north",
-        "the",
-        "east",
-        "the",
-        "west",
-        "interior",
-        "highlands",
-        "lowlands",
-    ]
-) | {
-    "north east",
-    "north west",
-    "south east",
-    "south west",
-    "the south",
-    "the north",
-    "the east",
-    "the west",
-}
-
-
 def _name_variants(name: str) -> list[str]:
     """ISO 3166-2 names carry variants: "Catalunya [Cataluña]", "A;B", "X, Région de"."""
     out = []
@@ -214,14 +140,11 @@ def _name_variants(name: str) -> list[str]:
     return out or [name]
 
 
-_SAINTS = (("saint ", "st "), ("sainte ", "ste "), ("mount ", "mt "), ("fort ", "ft "))
-
-
 def _saint_variants(name: str) -> list[str]:
     """The usual short and long forms of a leading Saint/Mount/Fort ("St. Petersburg")."""
     key = fold(name) + " "
     out = []
-    for long, short in _SAINTS:
+    for long, short in SAINT_ABBREVIATIONS:
         if key.startswith(long):
             out.append(short + key[len(long) :])
         elif key.startswith(short):

@@ -18,6 +18,8 @@ import unicodedata
 from dataclasses import dataclass, field
 from functools import lru_cache
 
+from .tables import POSTCODE_FORMATS, STREET_SUFFIX_ONLY, STREET_WORDS
+
 __all__ = ["NoisePhrases", "Part", "Query", "Token", "fold", "normalize", "normalize_key"]
 
 # Regional indicator symbols U+1F1E6..U+1F1FF map to A..Z (Unicode TR51, flags).
@@ -53,59 +55,7 @@ _SPECIAL_FOLD = {
 
 # Hard separators: always split a string into parts.
 _HARD_SEP = re.compile(r"\s*(?:[,/|;·•()\[\]{}<>\n\t]|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|\bvia\b)\s*")
-# Postcode shapes whose format names the country (common practice; formats
-# from memory: UK outward+inward code, Canadian FSA+LDU, Irish Eircode).
-POSTCODE_FORMATS = {
-    "GB": re.compile(r"(?<!\S)([a-z]{1,2}\d[a-z\d]?) ?\d[a-z]{2}(?!\S)"),
-    "CA": re.compile(r"(?<!\S)([a-z]\d[a-z]) ?\d[a-z]\d(?!\S)"),
-    "IE": re.compile(r"(?<!\S)([a-z]\d{2}) ?[a-z\d]{4}(?!\S)"),
-}
 _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
-_STREET_WORDS = frozenset(
-    [
-        "street",
-        "rd",
-        "road",
-        "ave",
-        "avenue",
-        "blvd",
-        "boulevard",
-        "lane",
-        "ln",
-        "dr",
-        "drive",
-        "apt",
-        "suite",
-        "unit",
-        "plot",
-        "floor",
-        "rua",
-        "av",
-        "avenida",
-        "calle",
-        "carrer",
-        "via",
-        "viale",
-        "piazza",
-        "rue",
-        "chemin",
-        "allee",
-        "strasse",
-        "str",
-        "ul",
-        "ulica",
-        "prospekt",
-        "block",
-        "sector",
-        "ku",
-        "chome",
-        "marg",
-        "flat",
-        "box",
-    ]
-)
-# "St" ends a street name ("Baggot St") but starts a saint's name ("St Helier").
-_STREET_SUFFIX_ONLY = frozenset({"st", "str"})
 _WS = re.compile(r"\s+")
 _ACRONYM = re.compile(r"(?<![\w.])(?:\w\.){2,}(?![\w])|(?<![\w.])(?:\w\.\w)(?![\w.])")
 _TOKEN = re.compile(r"[\w'.]+(?:-[\w'.]+)*", re.UNICODE)
@@ -320,8 +270,8 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
             continue
         tokens: list[Token] = []
         words = folded.split()
-        street = any(w in _STREET_WORDS for w in words) or any(
-            w in _STREET_SUFFIX_ONLY for w in words[1:]
+        street = any(w in STREET_WORDS for w in words) or any(
+            w in STREET_SUFFIX_ONLY for w in words[1:]
         )
         streetlike = streetlike or street
         # Align kept folded words with their typed forms.

@@ -6,7 +6,7 @@ from dataclasses import asdict, dataclass, field
 from enum import Enum
 from typing import Any
 
-__all__ = ["REASON_TEXT", "Candidate", "Reason", "Resolution", "Status"]
+__all__ = ["REASON_TEXT", "Candidate", "Reason", "Resolution", "Status", "settle"]
 
 
 class Status(str, Enum):
@@ -144,3 +144,28 @@ class Resolution:
             ],
             {d["country"]: 1.0},
         )
+
+
+# Reasons that always need a person, whatever the confidence.
+_ALWAYS_REVIEW = frozenset({Reason.SEVERAL_COUNTRIES, Reason.REMOTE_DIFFERS})
+
+
+def settle(res: Resolution, accept: float) -> Resolution:
+    """Set the status of an answer from its reason, country and confidence (in place).
+
+    The one place where ``matched`` and ``review`` are decided: an answer with a
+    country is ``matched`` when its confidence reaches ``accept``, else ``review``;
+    several countries and a remote service that disagrees always go to review; a
+    person's decision is final; no country is ``unmatched``; ``not_a_place`` stays.
+    """
+    if res.status is Status.NOT_A_PLACE:
+        return res
+    if res.reason in _ALWAYS_REVIEW:
+        res.status = Status.REVIEW
+    elif res.reason is Reason.REVIEWED:
+        res.status = Status.MATCHED
+    elif res.country:
+        res.status = Status.MATCHED if res.confidence >= accept else Status.REVIEW
+    else:
+        res.status = Status.UNMATCHED
+    return res

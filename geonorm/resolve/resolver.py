@@ -27,7 +27,7 @@ from dataclasses import dataclass, field, replace
 from .calibration import Calibration, load_calibration
 from .index import PlaceIndex, load_index
 from .normalize import NoisePhrases, Query, normalize, normalize_key
-from .resolution import Candidate, Reason, Resolution, Status
+from .resolution import Candidate, Reason, Resolution, Status, settle
 from .stages import (
     STOPWORDS,
     CityStage,
@@ -41,6 +41,7 @@ from .stages import (
     Segmenter,
     SubdivisionStage,
 )
+from .tables import SOVEREIGN
 
 __all__ = ["DEFAULT_ACCEPT", "RESOLVER_VERSION", "Resolver", "apply_accept"]
 
@@ -51,24 +52,6 @@ DEFAULT_ACCEPT = 0.70
 # Prior odds against a person listing places in several countries (common practice
 # in our tuning on labelled strings: most multi-part strings are one country).
 MULTI_PENALTY = 0.2
-# Territories with their own ISO 3166-1 code and the state they belong to
-# (from memory; ISO 3166-1 remarks). "Hong Kong, China" means HK.
-SOVEREIGN = {
-    **dict.fromkeys(["HK", "MO"], "CN"),
-    **dict.fromkeys(["PR", "GU", "VI", "AS", "MP", "UM"], "US"),
-    **dict.fromkeys(["GL", "FO"], "DK"),
-    **dict.fromkeys(["AW", "CW", "SX", "BQ"], "NL"),
-    **dict.fromkeys(
-        ["BM", "KY", "GI", "VG", "AI", "MS", "TC", "FK", "SH", "PN", "IO", "GS", "JE", "GG", "IM"],
-        "GB",
-    ),
-    **dict.fromkeys(["RE", "GP", "MQ", "GF", "YT", "NC", "PF", "PM", "BL", "MF", "WF", "TF"], "FR"),
-    "AX": "FI",
-    "SJ": "NO",
-    "BV": "NO",
-    **dict.fromkeys(["CX", "CC", "NF", "HM"], "AU"),
-    **dict.fromkeys(["TK", "NU", "CK"], "NZ"),
-}
 # A location is short; a cell longer than this (a pasted document) is read up to here.
 MAX_TEXT = 500
 # How far the file's country mix may lean an ambiguous name: shares are raised
@@ -85,13 +68,7 @@ NOT_A_PLACE_REASON = {
 
 def apply_accept(res: Resolution, accept: float) -> Resolution:
     """Set ``matched`` or ``review`` from the confidence and the accept threshold."""
-    if (
-        res.country
-        and res.status in (Status.MATCHED, Status.REVIEW)
-        and res.reason != Reason.SEVERAL_COUNTRIES
-    ):
-        res.status = Status.MATCHED if res.confidence >= accept else Status.REVIEW
-    return res
+    return settle(res, accept)
 
 
 @dataclass

@@ -21,8 +21,8 @@ import polars as pl
 import pycountry
 
 from ..batch.cache import Cache
-from ..errors import InputError
 from ..batch.formats import open_source, read_columns, read_header
+from ..errors import InputError
 from ..resolve.normalize import fold, normalize_key
 from ..resolve.resolver import Resolver
 

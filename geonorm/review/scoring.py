@@ -15,9 +15,9 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
-from ..resolve.calibration import expected_calibration_error, reliability
-from ..errors import InputError
 from ..batch.formats import open_source, read_columns, read_header
+from ..errors import InputError
+from ..resolve.calibration import expected_calibration_error, reliability
 from ..resolve.resolution import Reason, Resolution, Status
 from ..resolve.resolver import DEFAULT_ACCEPT, Resolver
 
