@@ -4,7 +4,14 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING, Any
 
-from .errors import CacheError, GeonormError, IndexError_, InputError
+from .errors import (
+    CacheError,
+    GeonormError,
+    IndexError_,
+    InputError,
+    PlaceIndexError,
+    RemoteError,
+)
 from .resolve.index import PlaceIndex, build_index, load_index
 from .resolve.normalize import Query, normalize
 from .resolve.resolution import Candidate, Reason, Resolution, Status
@@ -13,6 +20,7 @@ from .resolve.resolver import DEFAULT_ACCEPT, Resolver
 if TYPE_CHECKING:
     from .batch.cache import Cache
     from .batch.clean import CleanSummary, clean_file, resolve_series
+    from .batch.options import CleanOptions, RemoteOptions
 
 __version__ = "0.1.0"
 
@@ -21,13 +29,17 @@ __all__ = [
     "Cache",
     "CacheError",
     "Candidate",
+    "CleanOptions",
     "CleanSummary",
     "GeonormError",
     "IndexError_",
     "InputError",
     "PlaceIndex",
+    "PlaceIndexError",
     "Query",
     "Reason",
+    "RemoteError",
+    "RemoteOptions",
     "Resolution",
     "Resolver",
     "Status",
@@ -46,6 +58,8 @@ _LAZY = {
     "clean_file": "batch.clean",
     "resolve_series": "batch.clean",
     "Cache": "batch.cache",
+    "CleanOptions": "batch.options",
+    "RemoteOptions": "batch.options",
 }
 
 

@@ -5,15 +5,19 @@ from __future__ import annotations
 
 import functools
 import json
+import re
 import sys
+import time
+from collections.abc import Callable
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Any, TypeVar
 
 import typer
 from rich.console import Console
 from rich.table import Table
 
 from .errors import GeonormError
+from .progress import ProgressEvent
 from .resolve.resolver import DEFAULT_ACCEPT
 
 app = typer.Typer(
@@ -45,26 +49,93 @@ CacheOpt = Annotated[
 QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="No progress messages.")]
 
 
-def _say(quiet: bool):
-    if quiet or not sys.stderr.isatty():
-        return lambda msg: err.print(msg) if not quiet and "first use" in msg else None
-    return lambda msg: err.print(f"[dim]{msg}[/dim]")
+class _Renderer:
+    """Renders the library's progress events: dim notes and a rich progress bar on a
+    terminal; only the first-use notice otherwise; nothing with ``--quiet``."""
+
+    def __init__(self, quiet: bool) -> None:
+        self.quiet = quiet
+        self.tty = sys.stderr.isatty()
+        self.bar: Any = None
+        self.task: Any = None
+        self.started = 0.0
+
+    def __call__(self, event: ProgressEvent) -> None:
+        if self.quiet:
+            return
+        if event.kind == "note":
+            if self.tty:
+                err.print(f"[dim]{event.text}[/dim]")
+            elif "first use" in event.text:
+                err.print(event.text, markup=False)
+        elif self.tty and event.kind == "start":
+            self._start(event)
+        elif self.bar is not None and event.kind == "advance":
+            self.bar.advance(self.task, event.done)
+            done = self.bar.tasks[self.task].completed
+            rate = done / max(time.perf_counter() - self.started, 1e-6)
+            self.bar.update(self.task, rate=f"{rate:,.0f}/s")
+
+    def _start(self, event: ProgressEvent) -> None:
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeElapsedColumn,
+            TimeRemainingColumn,
+        )
+
+        self.close()
+        self.bar = Progress(
+            TextColumn("{task.description}"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            TextColumn("{task.fields[rate]}"),
+            TimeElapsedColumn(),
+            TimeRemainingColumn(),
+            console=err,
+            transient=True,
+        )
+        self.bar.start()
+        self.task = self.bar.add_task(event.text, total=event.total, rate="")
+        self.started = time.perf_counter()
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.stop()
+            self.bar = None
+
+    def text(self, message: str) -> None:
+        """For the index build, which reports plain messages."""
+        self(ProgressEvent("note", message))
 
 
-def handle_errors(fn):
+_FIELD = re.compile(r"`([a-z_]+)`")
+
+
+def as_flags(text: str) -> str:
+    """Library messages name fields in backquotes (`bad_lines`); the CLI shows flags."""
+    return _FIELD.sub(lambda m: "--" + m.group(1).replace("_", "-"), text)
+
+
+F = TypeVar("F", bound=Callable[..., Any])
+
+
+def handle_errors(fn: F) -> F:
     """Turn the library's errors into a message, a hint and exit code 1."""
 
     @functools.wraps(fn)
-    def wrapper(*args, **kwargs):
+    def wrapper(*args: Any, **kwargs: Any) -> Any:
         try:
             return fn(*args, **kwargs)
         except GeonormError as exc:
-            typer.echo(f"Error: {exc.message}", err=True)
+            typer.echo(f"Error: {as_flags(exc.message)}", err=True)
             if exc.hint:
-                typer.echo(f"Hint: {exc.hint}", err=True)
+                typer.echo(f"Hint: {as_flags(exc.hint)}", err=True)
             raise typer.Exit(1) from None
 
-    return wrapper
+    return wrapper  # type: ignore[return-value]
 
 
 @app.command()
@@ -73,13 +144,33 @@ def lookup(
     text: Annotated[list[str], typer.Argument(help="One or more location strings.")],
     as_json: Annotated[bool, typer.Option("--json", help="Print JSON instead of a table.")] = False,
     accept: AcceptOpt = DEFAULT_ACCEPT,
+    cache: Annotated[
+        Path | None,
+        typer.Option(
+            "--cache",
+            envvar="GEONORM_CACHE",
+            help="Use this cache: its stored answers and the review decisions in it.",
+        ),
+    ] = None,
     quiet: QuietOpt = False,
 ) -> None:
     """Resolve location strings given on the command line."""
+    from .batch.answers import resolve_keys
+    from .batch.cache import Cache
     from .resolve.resolver import Resolver
 
-    resolver = Resolver(accept=accept, progress=_say(quiet))
-    results = [(t, resolver.resolve(t)) for t in text]
+    show = _Renderer(quiet)
+    resolver = Resolver(accept=accept, progress=show.text)
+    keys = [resolver.key(t) for t in text]
+    the_cache = Cache(cache) if cache is not None else None
+    try:
+        answers = resolve_keys(
+            dict.fromkeys(keys, 1), resolver=resolver, cache=the_cache, accept=accept, full=True
+        )
+    finally:
+        if the_cache is not None:
+            the_cache.close()
+    results = [(t, answers.results[k]) for t, k in zip(text, keys, strict=True)]
     if as_json:
         payload = [
             {"text": t, **{k: v for k, v in r.to_dict().items() if k not in ("evidence", "score")}}
@@ -98,10 +189,16 @@ def lookup(
             r.status.value,
             place,
             f"{r.confidence:.2f}" if r.country else "",
-            r.reason.value,
+            r.reason_text,
             cands,
         )
     out.print(table)
+    if answers.decided:
+        out.print(
+            f"reason 'reviewed': a person's decision stored in {cache} was used "
+            "(see geonorm review list)",
+            markup=False,
+        )
 
 
 @app.command()
@@ -178,17 +275,9 @@ def clean(
     """Append geo columns to every row of a table, in input order."""
     from .batch.cache import Cache
     from .batch.clean import clean_file
+    from .batch.options import CleanOptions
 
-    if (budget is not None or budget_total is not None or refresh or dry_run) and remote is None:
-        raise GeonormError(
-            "--budget, --budget-total, --refresh and --dry-run only apply with --remote",
-            hint="add --remote ADAPTER.toml, or drop those options",
-        )
-    summary = clean_file(
-        input,
-        column,
-        output,
-        cache=Cache(cache),
+    options = CleanOptions.build(
         accept=accept,
         prefix=prefix,
         encoding=encoding,
@@ -197,19 +286,25 @@ def clean(
         workers=workers,
         bad_lines=bad_lines,
         report=report,
-        show_progress=not quiet and sys.stderr.isatty(),
-        progress=_say(quiet),
         remote=remote,
         budget=budget,
         budget_total=budget_total,
         refresh=refresh,
         dry_run=dry_run,
     )
+    show = _Renderer(quiet)
+    with Cache(cache) as the_cache:
+        try:
+            summary = clean_file(input, column, output, options, cache=the_cache, progress=show)
+        finally:
+            show.close()
     if dry_run:
         r = summary.remote
         typer.echo(
-            f"would send {r['planned']:,} request(s) to {r['provider']} ({r['eligible']:,} doubtful strings, "
-            f"{r['already_answered']:,} answered before, {r['over_budget']:,} over the budget); first:",
+            f"would send {r['planned']:,} request(s) to {r['provider']} ({r['eligible']:,} "
+            "doubtful strings, "
+            f"{r['already_answered']:,} answered before, {r['over_budget']:,} over the "
+            "budget); first:",
             err=True,
         )
         for item in r["top_planned"]:
@@ -234,8 +329,10 @@ def _print_summary(summary) -> None:
     r = summary.remote
     if r:
         typer.echo(
-            f"remote {r['provider']}: {r['requests']:,} request(s) for {r['answered']:,} new answer(s) "
-            f"({r['with_results']:,} with results, {r['no_result']:,} without, {r['errors']:,} errors, "
+            f"remote {r['provider']}: {r['requests']:,} request(s) for {r['answered']:,} new "
+            "answer(s) "
+            f"({r['with_results']:,} with results, {r['no_result']:,} without, {r['errors']:,} "
+            "errors, "
             f"{r['retries']:,} retries); {r['already_answered']:,} answered before; "
             f"{r['strings_changed']:,} string(s) changed",
             err=True,
@@ -257,7 +354,11 @@ def demo(
     """Clean the bundled demo member list and print a summary."""
     from .demo import run_demo
 
-    result = run_demo(out_dir, progress=_say(quiet))
+    show = _Renderer(quiet)
+    try:
+        result = run_demo(out_dir, progress=show)
+    finally:
+        show.close()
     _print_summary(result["summary"])
     table = Table(title="Top countries (matched rows)")
     table.add_column("country")
@@ -430,7 +531,8 @@ def score(
         return
     out.print(
         f"{rep.rows} rows, {rep.positives} with a true country; at --accept {rep.accept:g}: "
-        f"{rep.matched} matched, precision {rep.precision:.3f}, recall {rep.recall:.3f}, F1 {rep.f1:.3f}",
+        f"{rep.matched} matched, precision {rep.precision:.3f}, recall {rep.recall:.3f}, F1 "
+        f"{rep.f1:.3f}",
         markup=False,
     )
     if rep.subdivision_accuracy is not None:
@@ -468,7 +570,8 @@ def score(
         out.print(t)
     if rep.threshold_for_target is not None:
         out.print(
-            f"--accept {rep.threshold_for_target:.2f} reaches precision {rep.target_precision:g} on this "
+            f"--accept {rep.threshold_for_target:.2f} reaches precision "
+            f"{rep.target_precision:g} on this "
             f"sample (coverage {rep.coverage_at_target:.3f})",
             markup=False,
         )
@@ -592,10 +695,6 @@ def gazetteer_info(
     for k, v in meta.items():
         table.add_row(k, str(v))
     out.print(table)
-
-
-def main() -> None:  # pragma: no cover
-    app()
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -5,15 +5,16 @@ clean → review queue → per-country tally (and by station kind) → map.
 
 from __future__ import annotations
 
-from collections.abc import Callable
 from importlib import resources
 from pathlib import Path
+from typing import Any
 
 from .batch.cache import Cache
 from .batch.clean import clean_file
 from .errors import InputError
 from .figures.mapping import write_map
 from .figures.tally import tally_file, write_tally
+from .progress import Progress, no_progress
 from .review.queue import export_queue
 
 __all__ = ["demo_file", "run_demo"]
@@ -23,7 +24,7 @@ def demo_file() -> Path:
     packaged = Path(str(resources.files("geonorm"))) / "_demo" / "members.csv"
     if packaged.exists():
         return packaged
-    source = Path(__file__).resolve().parent.parent / "demo_data" / "members.csv"
+    source = Path(__file__).resolve().parents[1] / "demo_data" / "members.csv"
     if source.exists():
         return source
     raise InputError(
@@ -32,15 +33,15 @@ def demo_file() -> Path:
     )
 
 
-def run_demo(out_dir: Path, progress: Callable[[str], None] | None = None) -> dict:
+def run_demo(out_dir: Path, progress: Progress = no_progress) -> dict[str, Any]:
     """Clean the demo file into ``out_dir``; return the summary and file paths."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     cleaned = out_dir / "members_clean.csv"
-    cache = Cache(out_dir / "cache.sqlite")
-    summary = clean_file(demo_file(), "location", cleaned, cache=cache, progress=progress)
-    queue = out_dir / "review_queue.csv"
-    queued = export_queue(cleaned, queue, column="location", top=200, cache=cache)
+    with Cache(out_dir / "cache.sqlite") as cache:
+        summary = clean_file(demo_file(), "location", cleaned, cache=cache, progress=progress)
+        queue = out_dir / "review_queue.csv"
+        queued = export_queue(cleaned, queue, column="location", top=200, cache=cache)
     countries = tally_file(cleaned)
     per_country = out_dir / "countries.csv"
     write_tally(countries, per_country, by=False)

@@ -1,7 +1,7 @@
 """A small geocoding web service for tests, bound to 127.0.0.1, answering from fixtures.
 
 Switches make it misbehave the way real services do: 429 with Retry-After,
-5xx, slow answers (timeouts), malformed JSON, every call failing. It records
+5xx, slow answers (timeouts), malformed JSON, any raw body, every call failing. It records
 each request (query text, headers) so tests can count what was sent.
 """
 
@@ -27,6 +27,7 @@ class Behaviour:
         default_factory=dict
     )  # query → seconds to wait (first call only)
     malformed: set[str] = field(default_factory=set)  # queries answered with broken JSON
+    raw: dict[str, bytes] = field(default_factory=dict)  # query → body sent as it is
     always: int | None = None  # every call answers this status
     delay: float = 0.0  # every call waits this long
 
@@ -90,6 +91,8 @@ class FixtureServer:
             return self.reply(h, status, {"error": "try later"}, headers)
         if q in b.malformed:
             return self.reply(h, 200, None, raw=b'{"hits": [ {"lat": 1,')
+        if q in b.raw:
+            return self.reply(h, 200, None, raw=b.raw[q])
         return self.reply(h, 200, {"hits": b.answers.get(q, [])})
 
     @staticmethod

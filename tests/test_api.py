@@ -14,14 +14,18 @@ def test_public_api_is_explicit():
             "Cache",
             "CacheError",
             "Candidate",
+            "CleanOptions",
             "CleanSummary",
             "DEFAULT_ACCEPT",
             "GeonormError",
             "IndexError_",
             "InputError",
             "PlaceIndex",
+            "PlaceIndexError",
             "Query",
             "Reason",
+            "RemoteError",
+            "RemoteOptions",
             "Resolution",
             "Resolver",
             "Status",
@@ -61,7 +65,7 @@ def test_demo_end_to_end(tmp_path):
     )
     source = list(csv.DictReader(open(geonorm.demo.demo_file(), encoding="utf-8", newline="")))
     assert [r["member_id"] for r in cleaned] == [r["member_id"] for r in source]
-    assert all(r["location"] == s["location"] for r, s in zip(cleaned, source))
+    assert all(r["location"] == s["location"] for r, s in zip(cleaned, source, strict=False))
     assert summary.status["matched"] / summary.rows > 0.7
     assert dict(result["top_countries"])["US"] > dict(result["top_countries"]).get("GB", 0)
     for label in (

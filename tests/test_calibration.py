@@ -5,7 +5,12 @@ from __future__ import annotations
 import math
 import random
 
-from geonorm.resolve.calibration import Calibration, expected_calibration_error, fit_platt, reliability
+from geonorm.resolve.calibration import (
+    Calibration,
+    expected_calibration_error,
+    fit_platt,
+    reliability,
+)
 
 
 def test_ece_hand_computed():

@@ -120,7 +120,8 @@ def test_missing_column_lists_columns(tmp_path):
     assert r.exit_code == 1
     assert r.stderr == (
         f"Error: column 'location' is not in {src}; its columns are: id, location_text\n"
-        "Hint: did you mean --column 'location_text'? pass the name of the location column with --column\n"
+        "Hint: did you mean --column 'location_text'? pass the name of the location column "
+        "with --column\n"
     )
     assert not (tmp_path / "o.csv").exists()
 

@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pytest
 
+from geonorm.batch.answers import count_keys, resolve_keys
 from geonorm.resolve.calibration import expected_calibration_error
 
 DEVSET = Path(__file__).parent / "data" / "locations_dev.csv"
@@ -21,8 +22,8 @@ NOT_A_PLACE_KINDS = {"junk", "empty_like", "fictional"}
 @pytest.fixture(scope="module")
 def scored(resolver):
     rows = list(csv.DictReader(open(DEVSET, encoding="utf-8", newline="")))
-    results = resolver.resolve_many([r["text"] for r in rows])
-    return [(r, results[r["text"]]) for r in rows]
+    answers = resolve_keys(count_keys([r["text"] for r in rows], resolver), resolver=resolver)
+    return [(r, answers.results[resolver.key(r["text"])]) for r in rows]
 
 
 def test_precision_and_recall_of_matched(scored):

@@ -57,7 +57,19 @@ def test_noise_phrases_removed_by_position():
     )
     q = normalize("Currently living in Greater Oslo area for now", noise)
     assert [p.key for p in q.parts] == ["greater oslo"]
-    assert q.had_noise
+    assert q.parts[0].full_key == "currently living in greater oslo area for now"
+    assert normalize("Living in Greater Oslo area", noise).parts[0].lead_key == "greater oslo area"
+
+
+def test_street_lines_are_marked_and_numbers_dropped():
+    q = normalize("12 Baker Street, Flat 4b, London")
+    assert [(p.key, p.street) for p in q.parts] == [
+        ("baker street", True),
+        ("flat", True),
+        ("london", False),
+    ]
+    assert normalize("Baggot St, Dublin").parts[0].street
+    assert not normalize("St Helier, Jersey").parts[0].street  # "St" first: a saint
 
 
 def test_postcodes_recognised_by_format():

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import email.utils
 import json
 import os
 import signal
@@ -10,14 +11,27 @@ import sqlite3
 import subprocess
 import sys
 import time
+from datetime import datetime, timedelta, timezone
 
+import httpx
 import pytest
 from conftest import wait_for_rows
 from fixture_server import Behaviour, FixtureServer, adapter_file, hit
 from typer.testing import CliRunner
 
+from geonorm.batch.cache import Cache
+from geonorm.batch.remote import (
+    MAX_RETRY_AFTER,
+    RemoteAnswer,
+    RemoteError,
+    RemoteHit,
+    TomlAdapter,
+    _retry_after,
+    merge,
+    run_remote,
+)
 from geonorm.cli import app
-from geonorm.batch.remote import RemoteError, TomlAdapter
+from geonorm.resolve.resolution import Candidate, Reason, Resolution, Status, settle
 
 runner = CliRunner()
 # Invented place names the offline index cannot know; the fixture service knows some of them.
@@ -56,7 +70,8 @@ def _clean(tmp_path, src, adapter, *extra, env=None):
 
 
 def _rows(tmp_path):
-    return list(csv.DictReader(open(tmp_path / "out.csv", encoding="utf-8", newline="")))
+    with open(tmp_path / "out.csv", encoding="utf-8", newline="") as fh:
+        return list(csv.DictReader(fh))
 
 
 def test_adapter_file_errors_name_the_line(tmp_path):
@@ -220,8 +235,8 @@ def test_circuit_breaker_stops_calling(tmp_path):
         assert r.exit_code == 0, r.output
         assert sum(server.counts().values()) == 5
         assert (
-            "remote team-geocoder: 5 failures in a row (last: HTTP 500); stopped calling, the run goes on "
-            "offline"
+            "remote team-geocoder: 5 failures in a row (last: HTTP 500); stopped calling, "
+            "the run goes on offline"
         ) in r.stderr
         assert "7 string(s) were not sent because the circuit breaker opened" in r.stderr
         assert len(_rows(tmp_path)) == sum(many.values())  # the run finished offline, nothing lost
@@ -253,10 +268,8 @@ def test_agreement_raises_confidence_and_disagreement_goes_to_review(tmp_path):
             ],
         )
         assert offline.exit_code == 0
-        before = {
-            r["location"]: r
-            for r in csv.DictReader(open(tmp_path / "offline.csv", encoding="utf-8"))
-        }
+        with open(tmp_path / "offline.csv", encoding="utf-8") as fh:
+            before = {r["location"]: r for r in csv.DictReader(fh)}
         r = _clean(tmp_path, src, adapter)
         assert r.exit_code == 0, r.output
         after = {row["location"]: row for row in _rows(tmp_path)}
@@ -363,3 +376,131 @@ def test_kill_mid_run_then_rerun_sends_nothing_twice(tmp_path):
         assert (
             sum(counts.values()) <= len(many) + 1
         )  # at most the one request in flight at the kill
+
+
+def _run(tmp_path, server, texts, **kw):
+    """``run_remote`` against the fixture service, one request at a time; waits are recorded."""
+    waits: list[float] = []
+    adapter = TomlAdapter(adapter_file(tmp_path / "a.toml", server.url, concurrency=1))
+    with Cache(tmp_path / "cache.sqlite") as cache:
+        wanted = [(t, len(texts) - i) for i, t in enumerate(texts)]  # sent in this order
+        summary = run_remote(adapter, wanted, cache, sleep=waits.append, **kw)
+        answers = cache.remote_answers(adapter.name, texts)
+    return summary, waits, answers
+
+
+def test_unreadable_retry_after_is_ignored_and_backoff_applies(tmp_path):
+    behaviour = Behaviour(
+        answers={"zorbaville": [hit("FR", 45.1, 4.8)], "quellmoor": [hit("DE", 52.0, 9.0)]},
+        fail_first={
+            "zorbaville": [(429, {"Retry-After": "soon"})],
+            "quellmoor": [(503, {"Retry-After": "Wed, 21 Oct 99999 07:28:00 GMT"})],
+        },
+    )
+    started = time.monotonic()
+    with FixtureServer(behaviour) as server:
+        summary, waits, answers = _run(
+            tmp_path, server, ["zorbaville", "quellmoor"], backoff=0.2, budget=10
+        )
+        assert server.counts() == {"zorbaville": 2, "quellmoor": 2}
+    assert time.monotonic() - started < 30
+    assert (summary.requests, summary.retries, summary.results) == (4, 2, 2)
+    # No wait named: the first retry waits backoff × [0.5, 1.5).
+    assert len(waits) == 2 and all(0.1 <= w < 0.3 for w in waits), waits
+    assert {k: a.hits[0].country for k, a in answers.items()} == {
+        "zorbaville": "FR",
+        "quellmoor": "DE",
+    }
+
+
+def test_retry_after_as_an_http_date(tmp_path):
+    now = datetime.now(timezone.utc)
+    in_30s = email.utils.format_datetime(now + timedelta(seconds=30), usegmt=True)
+    past = email.utils.format_datetime(now - timedelta(hours=1), usegmt=True)
+    tomorrow = email.utils.format_datetime(now + timedelta(days=1), usegmt=True)
+    behaviour = Behaviour(
+        answers={t: [hit("FR", 45.1, 4.8)] for t in ("zorbaville", "quellmoor", "brindleford")},
+        fail_first={
+            "zorbaville": [(429, {"Retry-After": in_30s})],
+            "quellmoor": [(429, {"Retry-After": past})],
+            "brindleford": [(503, {"Retry-After": tomorrow})],
+        },
+    )
+    with FixtureServer(behaviour) as server:
+        summary, waits, _ = _run(tmp_path, server, ["zorbaville", "quellmoor", "brindleford"])
+        assert sum(server.counts().values()) == 6
+    assert summary.results == 3 and summary.retries == 3
+    # HTTP dates have whole seconds: 30 s ahead is a wait of 29–30 s; a past date is no
+    # wait; a day ahead is capped.
+    assert 28.5 <= waits[0] <= 30.5, waits
+    assert waits[1:] == [0.0, MAX_RETRY_AFTER]
+
+
+@pytest.mark.parametrize(
+    ("value", "expected"),
+    [
+        ("2", 2.0),
+        ("-3", 0.0),
+        ("100000", MAX_RETRY_AFTER),
+        ("soon", None),
+        ("nan", None),
+        ("", None),
+        ("Mon, 99 Foo 2020 00:00:00 GMT", None),
+        ("Wed, 21 Oct 2015 07:28:00 GMT", 0.0),
+    ],
+)
+def test_retry_after_values(value, expected):
+    response = httpx.Response(429, headers={"Retry-After": value})
+    assert _retry_after(response) == expected
+
+
+def test_malformed_numbers_and_deep_json_are_rejected_not_raised(tmp_path):
+    huge = 10**400  # an integer JSON allows and a float cannot hold
+    behaviour = Behaviour(
+        answers={
+            "zorbaville": [
+                {"address": {"cc": "FR"}, "lat": huge, "lon": 4.8},
+                {"address": {"cc": "FR"}, "lat": True, "lon": 4.8},
+                {"address": {"cc": "FR"}, "lat": 45.1, "lon": 4.8, "relevance": huge},
+            ],
+            "quellmoor": [hit("DE", 52.0, 9.0, relevance=float("nan"))],
+        },
+        raw={"brindleford": b"[" * 100_000 + b"]" * 100_000},
+    )
+    with FixtureServer(behaviour) as server:
+        summary, _, answers = _run(tmp_path, server, ["zorbaville", "quellmoor", "brindleford"])
+        assert sum(server.counts().values()) == 3
+    assert summary.rejected == 2 and summary.results == 2 and summary.errors == 1
+    assert answers["zorbaville"].hits == [RemoteHit("FR", 45.1, 4.8, "", "", None)]
+    assert answers["quellmoor"].hits[0].score is None  # NaN is no score
+    assert answers["brindleford"] == RemoteAnswer("error", error="the response is not valid JSON")
+
+
+def test_status_is_set_by_settle_not_by_merge(resolver):
+    index = resolver.index
+    found = RemoteAnswer("ok", [RemoteHit("CA", 49.25, -123.12, "Vancouver", "", 0.95)])
+    local = Resolution(
+        Status.REVIEW, Reason.CITY_BY_SIZE, "CA", confidence=0.6, candidates=[Candidate("CA")]
+    )
+    agrees = merge(local, found, "svc", index)
+    assert agrees.reason is Reason.REMOTE_AGREES and agrees.confidence == 0.98
+    assert agrees.status is Status.REVIEW  # as it came in: merge does not decide
+    assert merge(local, found, "svc", index, accept=0.5) == agrees  # ``accept`` is ignored
+    assert local.status is Status.REVIEW and local.reason is Reason.CITY_BY_SIZE
+    assert settle(agrees, 0.75).status is Status.MATCHED
+
+    other = Resolution(Status.MATCHED, Reason.CITY, "ES", confidence=0.99)
+    differs = merge(other, found, "svc", index)
+    assert (differs.reason, differs.status) == (Reason.REMOTE_DIFFERS, Status.MATCHED)
+    assert settle(differs, 0.75).status is Status.REVIEW  # always review, whatever the score
+
+    nothing = Resolution(Status.UNMATCHED, Reason.NO_MATCH)
+    new = merge(nothing, found, "svc", index)
+    assert (new.reason, new.country, new.status) == (
+        Reason.REMOTE_FOUND,
+        "CA",
+        Status.UNMATCHED,
+    )
+    assert settle(new, 0.75).status is Status.MATCHED  # 0.95 × 0.85 ≥ 0.75
+    assert settle(merge(nothing, found, "svc", index), 0.9).status is Status.REVIEW
+    assert merge(nothing, RemoteAnswer("no_result"), "svc", index) is nothing

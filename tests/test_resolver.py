@@ -2,10 +2,19 @@
 
 from __future__ import annotations
 
+import ast
+import csv
+import json
+from pathlib import Path
+
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from geonorm import Reason, Status
+from geonorm.batch.answers import resolve_keys
+from geonorm.resolve import calibration
+from geonorm.resolve.stages import Stage
+from geonorm.review import refit
 
 
 def test_city_with_state_abbreviation(resolver):
@@ -88,14 +97,65 @@ def test_dominant_bare_name_and_genuine_ambiguity(resolver):
     assert resolver.resolve("Valencia").status == Status.REVIEW  # Spain and Venezuela, comparable
 
 
+def _pipeline(resolver, counts, accept=None):
+    """The answer pipeline's final answers, by text."""
+    keys = {t: resolver.key(t) for t in counts}
+    answers = resolve_keys(
+        {keys[t]: n for t, n in counts.items()}, resolver=resolver, accept=accept
+    )
+    return {t: answers.results[k] for t, k in keys.items()}
+
+
 def test_file_prior_leans_ambiguous_names(resolver):
     # A bare "Valencia" is ambiguous; in a file of Venezuelans it leans to Venezuela,
     # in a file of Spaniards to Spain.
     ve = {"Caracas": 80, "Maracaibo, Venezuela": 40, "Valencia": 5}
     es = {"Madrid": 80, "Sevilla, España": 40, "Valencia": 5}
-    assert resolver.resolve_many(ve)["Valencia"].country == "VE"
-    assert resolver.resolve_many(es)["Valencia"].country == "ES"
-    assert resolver.resolve_many(es)["Valencia"].reason == Reason.FILE_PRIOR
+    assert _pipeline(resolver, ve)["Valencia"].country == "VE"
+    assert _pipeline(resolver, es)["Valencia"].country == "ES"
+    assert _pipeline(resolver, es)["Valencia"].reason == Reason.FILE_PRIOR
+
+
+def test_reranked_answers_take_the_threshold_of_the_run(resolver):
+    counts = {"Madrid": 80, "Sevilla, España": 40, "Valencia": 5}
+    loose = _pipeline(resolver, counts, accept=0.0)["Valencia"]
+    assert loose.reason == Reason.FILE_PRIOR and loose.status == Status.MATCHED
+    assert _pipeline(resolver, counts, accept=1.0)["Valencia"].status == Status.REVIEW
+
+
+def test_cascade_is_an_ordered_list_of_stages(resolver):
+    assert [s.name for s in resolver.stages] == [
+        "flag",
+        "postcode",
+        "country",
+        "subdivision",
+        "city",
+    ]
+    stage: Stage = resolver.stages[-1]
+    query = resolver.normalize("Lisbon")
+    found = stage.resolve(query, resolver.segmenter.spans(query))
+    assert {r.place.cc for m in found for r in m.readings} >= {"PT"}
+
+
+def test_calibration_does_not_depend_on_the_resolver():
+    tree = ast.parse(Path(calibration.__file__).read_text(encoding="utf-8"))
+    imported = {node.module or "" for node in ast.walk(tree) if isinstance(node, ast.ImportFrom)}
+    assert not any("resolver" in name for name in imported)
+
+
+def test_refit_writes_a_calibration(tmp_path, resolver):
+    labelled = tmp_path / "labelled.csv"
+    rows = [("Paris", "FR"), ("Berlin", "DE"), ("Valencia", "VE"), ("Lisbon / Berlin", "")]
+    with open(labelled, "w", encoding="utf-8", newline="") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(["text", "country"])
+        writer.writerows(rows)
+    out = tmp_path / "calibration.json"
+    refit.main([str(labelled), "--out", str(out)])
+    fitted = json.loads(out.read_text(encoding="utf-8"))
+    assert fitted["fitted_on"] == "labelled.csv"
+    assert fitted["n"] == 3  # rows given a country; "Lisbon / Berlin" is not
+    assert fitted["method"] in ("identity", "global", "per_reason")
 
 
 def test_accept_threshold_sets_status(resolver):

@@ -84,7 +84,7 @@ def small(tmp_path):
 
 
 def test_queue_is_ranked_neutralised_and_round_trips(small):
-    tmp_path, src, cleaned, cache = small
+    tmp_path, _src, cleaned, cache = small
     queue = tmp_path / "queue.csv"
     r = _invoke("review", "export", cleaned, "--out", queue, "--cache", cache)
     assert r.exit_code == 0, r.output
@@ -201,9 +201,9 @@ def test_decisions_stick_and_change_counts(small):
         and r["geo_confidence"] == "1.000"
         for r in val
     )
-    sj = [r for r in after if r["location"] == "San Jose"][0]
+    sj = next(r for r in after if r["location"] == "San Jose")
     assert (sj["geo_country"], sj["geo_subdivision"]) == ("US", "US-CA")
-    xyzzy = [r for r in after if r["location"] == "xyzzy"][0]
+    xyzzy = next(r for r in after if r["location"] == "xyzzy")
     assert xyzzy["geo_status"] == "not_a_place" and xyzzy["geo_reason"] == "reviewed"
     count = lambda rows, s: sum(r["geo_status"] == s for r in rows)  # noqa: E731
     assert count(after, "matched") - count(before, "matched") == 4  # 3 Valencia + San Jose
@@ -219,7 +219,7 @@ def test_decisions_stick_and_change_counts(small):
 
 
 def test_every_invalid_decision_is_reported_by_line(small):
-    tmp_path, src, cleaned, cache = small
+    tmp_path, _src, cleaned, cache = small
     queue = tmp_path / "queue.csv"
     assert (
         _invoke(
@@ -292,7 +292,7 @@ def test_every_invalid_decision_is_reported_by_line(small):
 
 
 def test_apply_while_clean_runs_loses_nothing(small, tmp_path):
-    _, src, cleaned, cache = small
+    _, _src, cleaned, cache = small
     queue = tmp_path / "queue.csv"
     assert _invoke("review", "export", cleaned, "--out", queue, "--cache", cache).exit_code == 0
     lines = _read(queue)
@@ -356,8 +356,9 @@ def test_score_on_a_hand_computed_example():
     # Threshold 0.9: called {1,2,5} (0.99, 0.95, 0.90) → right 2 → precision 0.6667, coverage 0.4.
     # Threshold 0.95: called {1,2} → precision 1.0 — the lowest threshold with precision ≥ 0.97
     # on the 0.01 grid is 0.91 (called {1,2}).
-    # ECE over the 5 answers with a country: bins 0.9-1.0 = {0.99 ok, 0.95 ok, 0.90 wrong}: |2/3 − 0.9467|
-    # = 0.28, weight 3/5; 0.8-0.9 = {0.80 wrong}: 0.8, weight 1/5; 0.6-0.7 = {0.60 ok}: 0.4, weight 1/5;
+    # ECE over the 5 answers with a country: bins 0.9-1.0 = {0.99 ok, 0.95 ok, 0.90 wrong}:
+    # |2/3 − 0.9467| = 0.28, weight 3/5; 0.8-0.9 = {0.80 wrong}: 0.8, weight 1/5;
+    # 0.6-0.7 = {0.60 ok}: 0.4, weight 1/5;
     # ECE = 0.6·0.28 + 0.2·0.8 + 0.2·0.4 = 0.408.
     pairs = [
         ("FR", _res("FR", 0.99)),

@@ -5,6 +5,7 @@ from __future__ import annotations
 import csv
 import json
 import random
+import re
 import xml.etree.ElementTree as ET
 
 import pycountry
@@ -13,7 +14,8 @@ from scipy.stats import chi2
 from typer.testing import CliRunner
 
 from geonorm.cli import app
-from geonorm.figures.mapping import NO_DATA, classes, render_svg
+from geonorm.clock import utc_stamp
+from geonorm.figures.mapping import NO_DATA, render_svg
 from geonorm.figures.population import bundled_population, read_population
 from geonorm.figures.stats import eb_gamma_prior, garwood, location_quotient, shrunk_rates
 from geonorm.figures.tally import tally_file
@@ -21,18 +23,22 @@ from geonorm.figures.tally import tally_file
 runner = CliRunner()
 
 
+@pytest.mark.parametrize("level", [0.90, 0.95, 0.99])
 @pytest.mark.parametrize("k", [0, 1, 2, 3, 5, 10, 20, 50, 100, 1000, 25_000])
-def test_garwood_matches_scipy_chi2(k):
-    # Source: scipy.stats.chi2 quantiles; Garwood (1936): [χ²(0.025; 2k)/2, χ²(0.975; 2k+2)/2].
-    low, high = garwood(k)
-    assert low == pytest.approx(0.0 if k == 0 else chi2.ppf(0.025, 2 * k) / 2, rel=1e-8, abs=1e-10)
-    assert high == pytest.approx(chi2.ppf(0.975, 2 * k + 2) / 2, rel=1e-8)
+def test_garwood_matches_scipy_chi2(k, level):
+    # Source: scipy.stats.chi2 quantiles; Garwood (1936): [χ²(α/2; 2k)/2, χ²(1 − α/2; 2k+2)/2].
+    alpha = 1 - level
+    low, high = garwood(k, level)
+    expected_low = 0.0 if k == 0 else chi2.ppf(alpha / 2, 2 * k) / 2
+    assert low == pytest.approx(expected_low, rel=1e-10, abs=1e-12)
+    assert high == pytest.approx(chi2.ppf(1 - alpha / 2, 2 * k + 2) / 2, rel=1e-10)
 
 
 def test_garwood_against_a_published_table():
-    # Exact 95% limits for a Poisson count as tabulated in epidemiology texts (e.g. the
-    # table of exact Poisson confidence limits after Garwood 1936) — values from memory,
-    # to the three decimals usually printed.
+    # Exact 95% limits for a Poisson count as tabulated in epidemiology texts (the table of
+    # exact Poisson confidence limits after Garwood 1936) — values from memory, to the
+    # decimals usually printed. The upper limit 3.689 for a count of 0 is also printed in the
+    # documentation of pois.exact in the R package epitools.
     table = {
         0: (0.000, 3.689),
         1: (0.0253, 5.572),
@@ -44,6 +50,28 @@ def test_garwood_against_a_published_table():
     for k, (lo, hi) in table.items():
         got = garwood(k)
         assert got[0] == pytest.approx(lo, abs=6e-4) and got[1] == pytest.approx(hi, abs=6e-4)
+
+
+@pytest.mark.parametrize(
+    ("count", "exposure", "low", "high"),
+    [
+        # StatsDirect help, "Poisson confidence interval": 14 events in 400 person-years,
+        # exact 95% interval 0.019135 to 0.058724 per person-year.
+        (14, 400, 0.019135, 0.058724),
+        # R package statpsych (Bonett), ci.poisson(.05, 23, 5.25): LL 2.777148, UL 6.57358.
+        (23, 5.25, 2.777148, 6.57358),
+    ],
+)
+def test_garwood_against_published_worked_examples(count, exposure, low, high):
+    got_low, got_high = garwood(count)
+    assert got_low / exposure == pytest.approx(low, abs=6e-7)
+    assert got_high / exposure == pytest.approx(high, abs=6e-6)
+
+
+def test_utc_stamp_format():
+    assert utc_stamp(0) == "1970-01-01T00:00:00Z"
+    assert utc_stamp(1_700_000_000.9) == "2023-11-14T22:13:20Z"  # seconds are truncated
+    assert re.fullmatch(r"\d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ", utc_stamp())
 
 
 def _cleaned(path, rows):
@@ -84,11 +112,13 @@ def test_rates_adjustment_and_lq_on_a_worked_example(tmp_path):
     # Groups (kind): FR has 6 "a" and 2 "b"; DE has 1 "a" and 3 "b".
     # Populations: FRA 2,000,000, DEU 4,000,000.
     # Located rows = 12; disclosure d = 12 / 20 = 0.6.
-    # FR: per million = 8 / 2e6 × 1e6 = 4.0; adjusted = 8 / (2e6 × 0.6) × 1e6 = 6.6667; share = 8/12.
+    # FR: per million = 8 / 2e6 × 1e6 = 4.0; adjusted = 8 / (2e6 × 0.6) × 1e6 = 6.6667;
+    # share = 8/12.
     # DE: per million = 4 / 4e6 × 1e6 = 1.0; adjusted = 4 / (4e6 × 0.6) × 1e6 = 1.6667.
     # LQ(FR, a) = (6/8) / (7/12) = 0.75 / 0.58333 = 1.2857; LQ(DE, b) = (3/4) / (5/12) = 1.8.
     # Interval for LQ(DE, b): sqrt(1/3 − 1/4 + 1/5 − 1/12) = sqrt(0.2) = 0.44721;
-    # exp(1.96 × 0.44721) = 2.4025, so the interval is 1.8 / 2.4025 … 1.8 × 2.4025 = (0.7492, 4.3246).
+    # exp(1.96 × 0.44721) = 2.4025, so the interval is 1.8 / 2.4025 … 1.8 × 2.4025
+    # = (0.7492, 4.3246).
     rows = (
         [("FR", "matched", "a")] * 6
         + [("FR", "matched", "b")] * 2
@@ -120,11 +150,15 @@ def test_rates_adjustment_and_lq_on_a_worked_example(tmp_path):
     ) == ("FR", "FRA", 8, 4.0, 6.6667)
     assert fr["share"] == pytest.approx(8 / 12, abs=1e-6)
     assert (de["per_million"], de["adjusted_per_million"]) == (1.0, 1.6667)
-    low, high = garwood(8)
-    assert (fr["per_million_low"], fr["per_million_high"]) == (
-        round(low / 2, 4),
-        round(high / 2, 4),
-    )
+    # Exact limits for 8 (scipy.stats.chi2): χ²(0.025; 16)/2 = 3.4538, χ²(0.975; 18)/2 = 15.7632;
+    # per million for 2,000,000 people: ÷ 2.
+    assert (fr["count_low"], fr["count_high"]) == (3.454, 15.763)
+    assert (fr["per_million_low"], fr["per_million_high"]) == (1.7269, 7.8816)
+    # Shrinkage (Marshall's moments over FR and DE, exposures in millions 2 and 4):
+    # m = 12 / 6 = 2; s² = (2 × (4 − 2)² + 4 × (1 − 2)²) / 6 = 2; n̄ = 3; v = 2 − 2/3 = 4/3;
+    # α = m²/v = 3, β = m/v = 1.5; FR (8 + 3) / (2 + 1.5) = 3.1429, DE (4 + 3) / (4 + 1.5) = 1.2727.
+    assert (res.sidecar["prior"]["alpha"], res.sidecar["prior"]["beta"]) == pytest.approx((3, 1.5))
+    assert (fr["shrunk_per_million"], de["shrunk_per_million"]) == (3.1429, 1.2727)
     by = {
         (r["country"], r["group"]): r for r in tally_file(cleaned, population=pop, by="kind").rows
     }
@@ -134,6 +168,11 @@ def test_rates_adjustment_and_lq_on_a_worked_example(tmp_path):
         (0.7492, 4.3246), abs=1e-4
     )
     assert by[("DE", "b")]["lq_flag"] == ""  # the interval includes 1
+    # Shrinkage per group. Group a (FR 6, DE 1): m = 7/6, s² = 121/72, v = 121/72 − 7/18 = 31/24,
+    # α = 98/93, β = 28/31; FR (6 + 98/93) / (2 + 28/31) = 656/270 = 2.4296.
+    assert by[("FR", "a")]["shrunk_per_million"] == 2.4296
+    # Group b (FR 2, DE 3): s² = 1/72 < m/n̄ = 5/18, no detectable variation: every rate → m = 5/6.
+    assert by[("DE", "b")]["shrunk_per_million"] == by[("FR", "b")]["shrunk_per_million"] == 0.8333
     with_review = tally_file(cleaned, population=pop, include_review=True)
     counts = {r["country"]: r["count"] for r in with_review.rows}
     assert with_review.funnel["located"] == 15 and counts == {"FR": 8, "DE": 7}  # DE 4 + 3 review
@@ -141,7 +180,7 @@ def test_rates_adjustment_and_lq_on_a_worked_example(tmp_path):
 
 def test_lq_flags_a_clear_over_representation():
     lq, low, high = location_quotient(80, 100, 200, 1000)  # 80% vs 20%: LQ 4
-    assert lq == 4.0 and low > 1
+    assert lq == 4.0 and 1 < low < lq < high
     assert location_quotient(0, 100, 200, 1000)[1] == 0.0
 
 
@@ -167,9 +206,9 @@ def test_shrinkage_beats_raw_rates_on_simulated_data():
         true.append(rate)
         pops.append(pop)
         counts.append(k)
-    raw = [c / p for c, p in zip(counts, pops)]
+    raw = [c / p for c, p in zip(counts, pops, strict=True)]
     shrunk = shrunk_rates(counts, pops)
-    mse = lambda est: sum((e - t) ** 2 for e, t in zip(est, true)) / len(true)  # noqa: E731
+    mse = lambda est: sum((e - t) ** 2 for e, t in zip(est, true, strict=True)) / len(true)  # noqa: E731
     assert mse(shrunk) < mse(raw)
     prior = eb_gamma_prior(counts, pops)
     assert prior.mean == pytest.approx(sum(counts) / sum(pops))
@@ -222,7 +261,8 @@ def test_tally_command_lists_countries_without_population(tmp_path):
     r = runner.invoke(app, ["tally", str(cleaned), "--out", str(out), "--population", str(pop)])
     assert r.exit_code == 0, r.output
     assert "no population for: NO (rates left empty)" in r.stderr
-    rows = list(csv.DictReader(open(out, encoding="utf-8")))
+    with open(out, encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
     assert list(rows[0])[:15] == [
         "country",
         "iso3",
@@ -249,15 +289,27 @@ def test_tally_command_lists_countries_without_population(tmp_path):
         app, ["tally", str(cleaned), "--out", str(tmp_path / "by.csv"), "--by", "kind"]
     )
     assert by.exit_code == 0, by.output
-    assert {"group", "lq", "lq_low", "lq_high"} <= set(
-        next(csv.DictReader(open(tmp_path / "by.csv")))
-    )
+    with open(tmp_path / "by.csv", encoding="utf-8") as fh:
+        assert {"group", "lq", "lq_low", "lq_high"} <= set(next(csv.DictReader(fh)))
     bad = runner.invoke(app, ["tally", str(cleaned), "--out", str(out), "--by", "nope"])
     assert bad.exit_code == 1 and bad.stderr.startswith("Error: column 'nope' is not in")
 
 
-def test_map_fills_classes_and_marks_no_data():
-    values = {"FR": 1.0, "DE": 2.0, "US": 3.0, "BR": 4.0, "IN": 5.0, "JP": 6.0}
+def test_map_fills_quantile_classes_and_marks_no_data():
+    # 11 values, 5 quantile classes. Sorted values v[0..10]; class boundaries are the values at
+    # positions round(i × 10 / 5) = 0, 2, 4, 6, 8, 10: 0.5, 2, 5, 13, 34, 89. A value goes to the
+    # first class whose upper boundary it does not exceed:
+    # 0.5, 1, 2 | 3, 5 | 8, 13 | 21, 34 | 55, 89.
+    # Colours: ColorBrewer YlOrRd with 5 classes, light to dark (from memory).
+    values = {
+        "FR": 0.5, "DE": 1, "US": 2, "BR": 3, "IN": 5, "JP": 8,
+        "CN": 13, "CA": 21, "MX": 34, "ZA": 55, "AU": 89,
+    }  # fmt: skip
+    yl_or_rd = ["#ffffb2", "#fecc5c", "#fd8d3c", "#f03b20", "#bd0026"]
+    expected = {
+        "FR": 0, "DE": 0, "US": 0, "BR": 1, "IN": 1, "JP": 2,
+        "CN": 2, "CA": 3, "MX": 3, "ZA": 4, "AU": 4,
+    }  # fmt: skip
     svg = render_svg(values, title="Members per million", unit="per million people")
     root = ET.fromstring(svg)
     ns = "{http://www.w3.org/2000/svg}"
@@ -266,14 +318,43 @@ def test_map_fills_classes_and_marks_no_data():
         for g in root.iter(f"{ns}g")
         if (g.get("class") or "").startswith("country ")
     }
-    cls = classes(list(values.values()))
-    for cc, v in values.items():
-        expected = next(c.colour for c in cls if v <= c.high)
-        assert fills[cc] == expected, cc
-    assert fills["FR"] != fills["JP"]
-    assert fills["AU"] == NO_DATA  # no value: drawn as no data
+    assert {cc: fills[cc] for cc in values} == {cc: yl_or_rd[i] for cc, i in expected.items()}
+    assert fills["AR"] == NO_DATA and fills["NO"] == NO_DATA  # no value: drawn as no data
+    tips = {
+        g.get("class").split()[1].upper(): g.find(f"{ns}title").text
+        for g in root.iter(f"{ns}g")
+        if (g.get("class") or "").startswith("country ")
+    }
+    assert tips["MX"] == "MX: 34.0 per million people" and tips["AR"] == "AR: no data"
+    legend = root.find(f"{ns}g[@id='legend']")
+    keys = [r.get("fill") for r in legend.iter(f"{ns}rect")]
+    labels = [t.text for t in legend.iter(f"{ns}text")]
+    assert keys == [*yl_or_rd, NO_DATA]
+    assert labels == [
+        "per million people",
+        "0.5 – 2.0",
+        "2.0 – 5.0",
+        "5.0 – 13.0",
+        "13.0 – 34.0",
+        "34.0 – 89.0",
+        "no data",
+    ]
     texts = [t.text for t in root.iter(f"{ns}text")]
-    assert "Members per million" in texts and "no data" in texts and "per million people" in texts
+    assert "Members per million" in texts
+
+
+def test_map_with_few_distinct_values_uses_the_darker_colours():
+    # Two distinct values: at most 2 classes; boundaries at positions round(i × 2 / 2) = 0, 1, 2 of
+    # (1, 1, 2) are 1, 1, 2, so one class 1 – 2, drawn in the darkest colour.
+    svg = render_svg({"FR": 1, "DE": 1, "US": 2}, title="t", unit="people")
+    root = ET.fromstring(svg)
+    ns = "{http://www.w3.org/2000/svg}"
+    fills = {
+        g.get("class").split()[1].upper(): g.get("fill")
+        for g in root.iter(f"{ns}g")
+        if (g.get("class") or "").startswith("country ")
+    }
+    assert fills["FR"] == fills["DE"] == fills["US"] == "#bd0026"
 
 
 def test_map_command_writes_self_contained_html(tmp_path):

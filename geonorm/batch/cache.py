@@ -10,18 +10,21 @@ chunk, so an interrupted run keeps what it committed.
 
 from __future__ import annotations
 
+import functools
 import json
 import os
 import sqlite3
-import time
-from collections.abc import Iterable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from pathlib import Path
+from typing import Any, ParamSpec, TypeVar
 
 import sqlite_utils
 
+from ..clock import utc_stamp
 from ..errors import CacheError
 from ..paths import data_dir
 from ..resolve.resolution import Candidate, Reason, Resolution, Status
+from .remote_answer import RemoteAnswer, answer_from_json, answer_to_json
 
 __all__ = ["CACHE_SCHEMA", "Cache", "default_cache_path"]
 
@@ -32,12 +35,41 @@ _STATUS = {s.value: s for s in Status}
 _REASON = {r.value: r for r in Reason}
 
 
+_T = TypeVar("_T")
+_P = ParamSpec("_P")
+_BATCH = 900  # keys per "IN (...)" query: below SQLite's limit on bound parameters
+
+
+def _guarded(method: Callable[_P, _T]) -> Callable[_P, _T]:
+    """Let every SQLite error of a cache method leave as a ``CacheError`` with a hint."""
+
+    @functools.wraps(method)
+    def wrapper(*args: _P.args, **kwargs: _P.kwargs) -> _T:
+        try:
+            return method(*args, **kwargs)
+        except sqlite3.Error as exc:
+            path = getattr(args[0], "path", "?")
+            raise CacheError(
+                f"the cache at {path} failed: {exc}",
+                hint="check the disk has space and the file is writable; if the file is "
+                "damaged, delete it or pass another `cache` file",
+            ) from exc
+
+    return wrapper
+
+
 def default_cache_path() -> Path:
     env = os.environ.get("GEONORM_CACHE")
     return Path(env) if env else data_dir() / "cache.sqlite"
 
 
 class Cache:
+    """The answers, decisions, queue, remote answers and run records of one SQLite file.
+
+    Use it as a context manager (``with Cache(path) as cache:``) to close it at the
+    end; every SQLite error leaves its methods as a ``CacheError``.
+    """
+
     def __init__(self, path: Path | str | None = None) -> None:
         self.path = Path(path) if path else default_cache_path()
         try:
@@ -111,9 +143,26 @@ class Cache:
         except (sqlite3.DatabaseError, OSError) as exc:
             raise CacheError(
                 f"cannot open the cache at {self.path} ({exc})",
-                hint="pass another file with --cache PATH, or delete the damaged file",
+                hint="pass another `cache` file, or delete the damaged file",
             ) from exc
 
+    def __enter__(self) -> Cache:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def _in_batches(
+        self, sql: str, keys: Sequence[str], before: Sequence[Any] = ()
+    ) -> Iterator[Any]:
+        """Rows of ``sql`` (whose ``{marks}`` stands for the key list) over ``keys`` in batches."""
+        for i in range(0, len(keys), _BATCH):
+            batch = keys[i : i + _BATCH]
+            yield from self.db.execute(
+                sql.format(marks=",".join("?" * len(batch))), [*before, *batch]
+            ).fetchall()
+
+    @_guarded
     def get_many(
         self, keys: Iterable[str], version: str, full: bool = False
     ) -> dict[str, Resolution]:
@@ -125,7 +174,8 @@ class Cache:
         keys = list(keys)
         out: dict[str, Resolution] = {}
         columns = (
-            "SELECT key, status, reason, country, subdivision, city, lat, lon, geonameid, confidence, "
+            "SELECT key, status, reason, country, subdivision, city, lat, lon, geonameid, "
+            "confidence, "
             "score, detail FROM resolution WHERE version = ?"
         )
         if len(keys) > 5000 and len(keys) * 4 >= self.count():
@@ -135,13 +185,7 @@ class Cache:
                 [row for row in self.db.execute(columns, [version]) if row[0] in wanted]
             ]
         else:
-            batches = (
-                self.db.execute(
-                    f"{columns} AND key IN ({','.join('?' * len(keys[i : i + 900]))})",
-                    [version, *keys[i : i + 900]],
-                ).fetchall()
-                for i in range(0, len(keys), 900)
-            )
+            batches = [list(self._in_batches(f"{columns} AND key IN ({{marks}})", keys, [version]))]
         for rows in batches:
             for key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail in rows:
                 res = Resolution(
@@ -156,9 +200,10 @@ class Cache:
                 out[key] = res
         return out
 
+    @_guarded
     def put_many(self, items: Mapping[str, Resolution], version: str) -> None:
         """Store answers in one transaction."""
-        now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+        now = utc_stamp()
         rows = [
             (
                 k,
@@ -187,11 +232,13 @@ class Cache:
         try:
             with self.db.conn:
                 self.db.conn.executemany(
-                    "INSERT INTO resolution (key, version, status, reason, country, subdivision, city, lat, lon, "
+                    "INSERT INTO resolution (key, version, status, reason, country, "
+                    "subdivision, city, lat, lon, "
                     "geonameid, confidence, score, detail, created, updated) "
                     "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?) ON CONFLICT(key) DO UPDATE SET "
                     "version=excluded.version, status=excluded.status, reason=excluded.reason, "
-                    "country=excluded.country, subdivision=excluded.subdivision, city=excluded.city, "
+                    "country=excluded.country, subdivision=excluded.subdivision, "
+                    "city=excluded.city, "
                     "lat=excluded.lat, lon=excluded.lon, geonameid=excluded.geonameid, "
                     "confidence=excluded.confidence, score=excluded.score, detail=excluded.detail, "
                     "updated=excluded.updated",
@@ -204,10 +251,12 @@ class Cache:
             ) from exc
 
     # -- human decisions ------------------------------------------------------
+    @_guarded
     def overrides(self, keys: Iterable[str] | None = None) -> dict[str, dict]:
         """Stored decisions, by key (all of them, or those of ``keys``)."""
         cols = (
-            "key, text, country, subdivision, city, lat, lon, geonameid, not_a_place, note, decided_at, "
+            "key, text, country, subdivision, city, lat, lon, geonameid, not_a_place, note, "
+            "decided_at, "
             "source"
         )
         if keys is None:
@@ -215,73 +264,64 @@ class Cache:
                 f"SELECT {cols} FROM override ORDER BY decided_at, key"
             ).fetchall()
         else:
-            keys = list(keys)
-            rows = []
-            for i in range(0, len(keys), 900):
-                batch = keys[i : i + 900]
-                rows += self.db.execute(
-                    f"SELECT {cols} FROM override WHERE key IN ({','.join('?' * len(batch))})",
-                    batch,
-                ).fetchall()
+            rows = list(
+                self._in_batches(
+                    f"SELECT {cols} FROM override WHERE key IN ({{marks}})", list(keys)
+                )
+            )
         names = [c.strip() for c in cols.split(",")]
-        return {r[0]: dict(zip(names, r)) for r in rows}
+        return {r[0]: dict(zip(names, r, strict=False)) for r in rows}
 
+    @_guarded
     def put_overrides(self, decisions: list[dict]) -> None:
         """Store decisions in one transaction."""
         with self.db.conn:
             self.db.table("override").upsert_all(decisions, pk="key")
 
+    @_guarded
     def delete_override(self, key: str) -> bool:
         with self.db.conn:
             cur = self.db.conn.execute("DELETE FROM override WHERE key = ?", (key,))
         return cur.rowcount > 0
 
+    @_guarded
     def put_queue(self, entries: list[dict]) -> None:
         with self.db.conn:
             self.db.table("queue").upsert_all(entries, pk="key")
 
+    @_guarded
     def queued(self, keys: Iterable[str]) -> set[str]:
-        keys = list(keys)
-        found: set[str] = set()
-        for i in range(0, len(keys), 900):
-            batch = keys[i : i + 900]
-            found |= {
-                r[0]
-                for r in self.db.execute(
-                    f"SELECT key FROM queue WHERE key IN ({','.join('?' * len(batch))})", batch
-                )
-            }
-        return found
+        return {
+            r[0]
+            for r in self._in_batches("SELECT key FROM queue WHERE key IN ({marks})", list(keys))
+        }
 
     # -- remote answers -------------------------------------------------------
-    def remote_answers(self, provider: str, keys: Iterable[str]):
-        """Cached answers of ``provider`` for ``keys`` (results, no-results and permanent errors)."""
-        from .remote import answer_from_json
+    @_guarded
+    def remote_answers(self, provider: str, keys: Iterable[str]) -> dict[str, RemoteAnswer]:
+        """Cached answers of ``provider`` for ``keys``: results, no-results, permanent errors."""
+        rows = self._in_batches(
+            "SELECT key, status, answer FROM remote_answer WHERE provider = ? AND key IN ({marks})",
+            list(keys),
+            [provider],
+        )
+        return {key: answer_from_json(status, answer) for key, status, answer in rows}
 
-        keys = list(keys)
-        out = {}
-        for i in range(0, len(keys), 900):
-            batch = keys[i : i + 900]
-            for key, status, answer in self.db.execute(
-                f"SELECT key, status, answer FROM remote_answer WHERE provider = ? AND key IN "
-                f"({','.join('?' * len(batch))})",
-                [provider, *batch],
-            ):
-                out[key] = answer_from_json(status, answer)
-        return out
-
-    def put_remote_answer(self, provider: str, key: str, answer, requests: int) -> None:
+    @_guarded
+    def put_remote_answer(
+        self, provider: str, key: str, answer: RemoteAnswer, requests: int
+    ) -> None:
         """One answer and the requests it cost, in one transaction (an interrupted run keeps it)."""
-        from .remote import answer_to_json
-
-        now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+        now = utc_stamp()
         with self.db.conn:
             self.db.conn.execute(
-                "INSERT OR REPLACE INTO remote_answer (provider, key, status, answer, asked_at) VALUES (?,?,?,?,?)",
+                "INSERT OR REPLACE INTO remote_answer (provider, key, status, answer, asked_at) "
+                "VALUES (?,?,?,?,?)",
                 (provider, key, answer.status, answer_to_json(answer), now),
             )
             self._add_usage(provider, requests)
 
+    @_guarded
     def add_remote_used(self, provider: str, requests: int) -> None:
         if requests:
             with self.db.conn:
@@ -294,23 +334,35 @@ class Cache:
             (provider, requests),
         )
 
+    @_guarded
     def remote_used(self, provider: str) -> int:
         row = self.db.execute(
             "SELECT requests FROM remote_usage WHERE provider = ?", (provider,)
         ).fetchone()
         return int(row[0]) if row else 0
 
-    def record_run(self, output: str, input: str, column: str) -> None:
-        now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+    @_guarded
+    def record_run(self, output: str, input: str, column: str, remote: str = "") -> None:
+        """Remember which column of which input made ``output``, and the remote service used."""
+        now = utc_stamp()
         with self.db.conn:
             self.db.table("run").upsert(
-                {"output": output, "input": input, "column": column, "at": now}, pk="output"
+                {"output": output, "input": input, "column": column, "remote": remote, "at": now},
+                pk="output",
+                alter=True,
             )
 
-    def run_column(self, output: str) -> str | None:
-        row = self.db.execute("SELECT column FROM run WHERE output = ?", (output,)).fetchone()
-        return row[0] if row else None
+    @_guarded
+    def run_info(self, output: str) -> dict[str, str] | None:
+        """What ``record_run`` stored for ``output``: its input, column and remote service."""
+        table = self.db.table("run")
+        row = table.rows_where("output = ?", [output], limit=1)
+        found = next(iter(row), None)
+        if found is None:
+            return None
+        return {k: str(found.get(k) or "") for k in ("input", "column", "remote")}
 
+    @_guarded
     def count(self) -> int:
         return self.db.table("resolution").count
 

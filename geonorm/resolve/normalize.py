@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import re
 import unicodedata
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from functools import lru_cache
 
 from .tables import POSTCODE_FORMATS, STREET_SUFFIX_ONLY, STREET_WORDS
@@ -59,6 +59,7 @@ _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _WS = re.compile(r"\s+")
 _ACRONYM = re.compile(r"(?<![\w.])(?:\w\.){2,}(?![\w])|(?<![\w.])(?:\w\.\w)(?![\w.])")
 _TOKEN = re.compile(r"[\w'.]+(?:-[\w'.]+)*", re.UNICODE)
+_NUMBER_LIKE = re.compile(r"[\d\-/]+[a-z]?")  # house and flat numbers: "12", "4b", "3/5"
 
 
 def _fold_char(ch: str) -> str:
@@ -168,13 +169,7 @@ class Query:
     parts: tuple[Part, ...]  # after noise removal
     flags: tuple[str, ...] = ()  # ISO codes from flag emoji
     postcodes: tuple[str, ...] = ()
-    streetlike: bool = False
-    had_noise: bool = False
-    has_letters: bool = field(default=False)
-
-    @property
-    def tokens(self) -> list[Token]:
-        return [t for p in self.parts for t in p.tokens]
+    has_letters: bool = False
 
 
 class NoisePhrases:
@@ -248,6 +243,54 @@ def normalize_key(raw: str) -> str:
     return _WS.sub(" ", folded).strip()
 
 
+def _is_street(words: list[str]) -> bool:
+    """A street line of an address: a street word anywhere, or a suffix-only one after a name."""
+    return any(w in STREET_WORDS for w in words) or any(w in STREET_SUFFIX_ONLY for w in words[1:])
+
+
+def _take_postcodes(text: str, postcodes: list[str]) -> str:
+    """Postcodes whose shape names the country ("EH8 9YL" → "GB:eh8") into ``postcodes``;
+    returns the text with them blanked."""
+    for country, pattern in POSTCODE_FORMATS.items():
+        for m in pattern.finditer(text):
+            if any(c.isdigit() for c in m.group(0)) and any(c.isalpha() for c in m.group(0)):
+                postcodes.append(f"{country}:{m.group(1)}")
+        text = pattern.sub(
+            lambda m: " " if any(c.isalpha() for c in m.group(0)) else m.group(0), text
+        )
+    return text
+
+
+def _tokens(text: str, chunk: str, postcodes: list[str]) -> list[Token]:
+    """The words of ``text`` with their typed forms from ``chunk``; numeric postcodes go
+    into ``postcodes``, house numbers and other numbers are dropped."""
+    orig_by_key: dict[str, str] = {}
+    for w in _TOKEN.findall(chunk):
+        orig_by_key.setdefault(fold(w), w.strip("."))
+    tokens = []
+    for word in text.split():
+        word = word.strip("'-+<>|")
+        if not word:
+            continue
+        if _NUMERIC_POSTCODE.match(word):
+            postcodes.append(word)
+        elif not (word.isdigit() or _NUMBER_LIKE.fullmatch(word)):
+            tokens.append(Token(word, orig_by_key.get(word, word)))
+    return tokens
+
+
+def _part(chunk: str, noise: NoisePhrases, postcodes: list[str]) -> Part | None:
+    """One part between hard separators, noise removed; None when no word is left."""
+    folded = fold(chunk)
+    stripped = noise.strip(folded)
+    if not stripped:
+        return None
+    tokens = _tokens(_take_postcodes(stripped, postcodes), chunk, postcodes)
+    if not tokens:
+        return None
+    return Part(tuple(tokens), folded, _is_street(folded.split()), noise.strip_prefix(folded))
+
+
 def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     """Normalise one raw value. Never raises; non-strings become empty queries."""
     if not isinstance(raw, str):
@@ -257,57 +300,10 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     noise = noise or _EMPTY_NOISE
     parts: list[Part] = []
     postcodes: list[str] = []
-    streetlike = False
-    had_noise = False
     for chunk in _HARD_SEP.split(text):
-        if not chunk or not chunk.strip():
-            continue
-        folded = fold(chunk)
-        stripped = noise.strip(folded)
-        if stripped != folded:
-            had_noise = True
-        if not stripped:
-            continue
-        tokens: list[Token] = []
-        words = folded.split()
-        street = any(w in STREET_WORDS for w in words) or any(
-            w in STREET_SUFFIX_ONLY for w in words[1:]
-        )
-        streetlike = streetlike or street
-        # Align kept folded words with their typed forms.
-        orig_words = [w for w in _TOKEN.findall(chunk)]
-        orig_by_key: dict[str, str] = {}
-        for w in orig_words:
-            orig_by_key.setdefault(fold(w), w.strip("."))
-        for country, pattern in POSTCODE_FORMATS.items():
-            for m in pattern.finditer(stripped):
-                if any(c.isdigit() for c in m.group(0)) and any(c.isalpha() for c in m.group(0)):
-                    postcodes.append(f"{country}:{m.group(1)}")
-            stripped = pattern.sub(
-                lambda m: " " if any(c.isalpha() for c in m.group(0)) else m.group(0), stripped
-            )
-        for word in stripped.split():
-            word = word.strip("'-+<>|")
-            if not word:
-                continue
-            if _NUMERIC_POSTCODE.match(word):
-                postcodes.append(word)
-                continue
-            if word.isdigit() or re.fullmatch(r"[\d\-/]+[a-z]?", word):
-                streetlike = True
-                continue
-            tokens.append(Token(word, orig_by_key.get(word, word)))
-        if tokens:
-            parts.append(Part(tuple(tokens), folded, street, noise.strip_prefix(folded)))
+        if chunk and chunk.strip():
+            part = _part(chunk, noise, postcodes)
+            if part is not None:
+                parts.append(part)
     has_letters = any(c.isalpha() for c in key) or bool(flags)
-    return Query(
-        raw,
-        key,
-        fold(text),
-        tuple(parts),
-        tuple(flags),
-        tuple(postcodes),
-        streetlike,
-        had_noise,
-        has_letters,
-    )
+    return Query(raw, key, fold(text), tuple(parts), tuple(flags), tuple(postcodes), has_letters)

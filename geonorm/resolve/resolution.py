@@ -6,7 +6,7 @@ from dataclasses import asdict, dataclass, field
 from enum import Enum
 from typing import Any
 
-__all__ = ["REASON_TEXT", "Candidate", "Reason", "Resolution", "Status", "settle"]
+__all__ = ["Candidate", "Reason", "Resolution", "Status", "settle"]
 
 
 class Status(str, Enum):
@@ -44,35 +44,6 @@ class Reason(str, Enum):
     REMOTE_AGREES = "remote_agrees"
     REMOTE_DIFFERS = "remote_differs"
     REMOTE_FOUND = "remote_found"
-
-
-REASON_TEXT: dict[Reason, str] = {
-    Reason.EMPTY: "the cell is empty or blank",
-    Reason.PLACEHOLDER: "a word for 'no value' (n/a, none, -, unknown …) in one of several languages",
-    Reason.JUNK: "text that is not a place (localhost, Earth, remote, keyboard mash …)",
-    Reason.FICTIONAL: "a fictional place (Middle-earth, Gotham …)",
-    Reason.WORLD_REGION: "a continent or a region spanning several countries: no single country",
-    Reason.FLAG: "decided by a flag emoji",
-    Reason.COUNTRY_NAME: "a country name, in any language or script the index knows",
-    Reason.COUNTRY_CODE: "an ISO 3166-1 alpha-2 or alpha-3 code where it is safe to read one",
-    Reason.SUBDIVISION: "a state, province or region name or abbreviation",
-    Reason.NAMED_AREA: "a named area inside one country (Bay Area, Midwest …)",
-    Reason.NICKNAME: "a nickname or abbreviation from the curated table (NYC, KL …)",
-    Reason.CITY: "a city or town name with one plausible country",
-    Reason.CITY_WITH_CONTEXT: "a city confirmed by a country or subdivision elsewhere in the text",
-    Reason.CITY_BY_SIZE: "a city name shared by places in several countries; the largest by far was chosen",
-    Reason.POSTCODE: "a postcode whose format or area names the place",
-    Reason.SPELLING: "a near spelling of a known name (typo tolerated)",
-    Reason.SAME_COUNTRY_PLACES: "several places, all in one country",
-    Reason.SEVERAL_COUNTRIES: "places in several countries: no single country",
-    Reason.AMBIGUOUS: "several readings of comparable weight",
-    Reason.FILE_PRIOR: "an ambiguous name settled by the countries of the rest of the file",
-    Reason.NO_MATCH: "nothing in the text matched the place index",
-    Reason.REVIEWED: "a person's decision, applied from the review queue (wins over every stage)",
-    Reason.REMOTE_AGREES: "the remote service named after the colon agrees with the offline guess",
-    Reason.REMOTE_DIFFERS: "the remote service named after the colon disagrees with the offline guess: review",
-    Reason.REMOTE_FOUND: "the remote service named after the colon found a place the offline cascade did not",
-}
 
 
 @dataclass(frozen=True)

@@ -1,17 +1,20 @@
-"""The cascade's stages. Each stage has one contract:
+"""The cascade's stages. Each exact stage has one contract (``Stage``):
 
-    stage.resolve(query) -> list[Mention]
+    stage.resolve(query, spans) -> list[Mention]
 
-A mention is a stretch of the text with its ranked readings (places it can
-mean). Stages run in order: not-a-place filter, flags, postcodes, country,
-subdivision, city (exact), fuzzy city. The resolver then weighs all mentions
-together (see ``resolver.py``).
+A mention is a stretch of the text with its readings (places it can mean).
+The resolver runs the not-a-place filter, then the stages in order (flags,
+postcodes, country, subdivision, city); ``mentions.py`` merges their mentions,
+tries spelling-tolerant matching (``FuzzyMatcher``) on words they left
+unexplained and prunes readings; ``decide.py`` weighs what remains.
 """
 
 from __future__ import annotations
 
 import re
+from collections.abc import Sequence
 from dataclasses import dataclass, field
+from typing import Protocol
 
 from rapidfuzz import process
 from rapidfuzz.distance import OSA
@@ -19,18 +22,20 @@ from rapidfuzz.distance import OSA
 from .index import NameHit, Place, PlaceIndex
 from .normalize import Part, Query
 from .tables import BARE_POSTAL_COUNTRIES, LOWER_WORD_CODES, STOPWORDS, UNSAFE_ALPHA3
+from .tuning import FUZZY_MIN_LEN, KIND_WEIGHT, MIN_WEIGHT, ORIGIN_WEIGHT, OTHER_ORIGIN_WEIGHT
 
 __all__ = [
-    "STOPWORDS",
     "CityStage",
     "CountryStage",
     "FlagStage",
-    "FuzzyStage",
+    "FuzzyMatcher",
     "Mention",
-    "NotAPlaceStage",
+    "NotAPlaceFilter",
     "PostcodeStage",
     "Reading",
     "Segmenter",
+    "Span",
+    "Stage",
     "SubdivisionStage",
 ]
 
@@ -48,14 +53,23 @@ _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
 
 @dataclass(frozen=True)
 class Reading:
+    """One place a mention can mean."""
+
     place: Place
     origin: str  # name origin (name, alias, code2, postal, alt …) or flag / postcode
-    weight: float
+    weight: float  # see ``place_weight``; flags and postcodes weigh 1
     similarity: float = 1.0  # 1.0 exact; typo matches carry 1 − edits / length
 
 
 @dataclass
 class Mention:
+    """A stretch of the text and the places it can mean.
+
+    ``part`` is the index of the comma- or slash-separated part of the text and
+    ``start`` the word the mention starts at; flags and postcodes, which belong to
+    the whole text, have ``part`` −1.
+    """
+
     text: str
     part: int
     start: int
@@ -75,6 +89,8 @@ class Mention:
 
 @dataclass
 class Span:
+    """The words ``start:end`` of part ``part``, a name the index knows, and its hits."""
+
     part: int
     start: int
     end: int
@@ -82,30 +98,24 @@ class Span:
     hits: tuple[NameHit, ...]
 
 
-# Relative trust in a name by where it comes from (common practice: official
-# and curated names over alternate spellings and translations).
-ORIGIN_WEIGHT = {
-    "name": 1.0,
-    "alias": 5.0,
-    "code2": 1.0,
-    "code3": 1.0,
-    "sub_code": 0.8,
-    "postal": 1.0,
-    "translation": 0.8,
-    "alt": 0.3,
-    "lower_sub": 0.05,
-    "adjective": 0.6,
-    "region": 1.0,
-    "short": 0.2,
-}
-# A country named in the text is rarely meant as anything else.
-KIND_WEIGHT = {"country": 3.0, "subdivision": 1.0, "city": 1.0, "area": 1.0, "region": 1.0}
-MIN_WEIGHT = 300.0  # a floor so places with unknown population still count
+class Stage(Protocol):
+    """An exact stage of the cascade: the mentions it finds in a query.
+
+    ``spans`` is the segmentation of the query into known names (``Segmenter``);
+    stages that read the whole text (flags, postcodes) ignore it.
+    """
+
+    name: str
+
+    def resolve(self, query: Query, spans: Sequence[Span]) -> list[Mention]: ...
 
 
 def place_weight(place: Place, origin: str) -> float:
+    """Population (floored) times trust in the name's origin times trust in the place kind."""
     return (
-        max(float(place.pop), MIN_WEIGHT) * ORIGIN_WEIGHT.get(origin, 0.5) * KIND_WEIGHT[place.kind]
+        max(float(place.pop), MIN_WEIGHT)
+        * ORIGIN_WEIGHT.get(origin, OTHER_ORIGIN_WEIGHT)
+        * KIND_WEIGHT[place.kind]
     )
 
 
@@ -184,13 +194,17 @@ class Segmenter:
         return spans
 
 
-class NotAPlaceStage:
-    """Empty cells, placeholders, junk and fictional places. Returns the kind or ''."""
+class NotAPlaceFilter:
+    """Empty cells, placeholders, junk and fictional places: the first step of the cascade.
+
+    ``classify`` returns the kind (empty, placeholder, junk, fictional) or '' for
+    text that may name a place; a kind ends the cascade.
+    """
 
     def __init__(self, index: PlaceIndex) -> None:
         self.table = index.nonplace
 
-    def resolve(self, query: Query) -> str:
+    def classify(self, query: Query) -> str:
         raw = query.key
         if not raw:
             return "empty"
@@ -208,26 +222,33 @@ class NotAPlaceStage:
             kind = self.table.get(k)
             if kind:
                 return "placeholder" if kind == "empty_like" else kind
-        bare = query.folded.replace(" ", "")
-        if _IPV4.match(query.folded) or _URL.search(query.key):
-            return "junk"
-        if (
-            len(bare) >= 5
-            and bare.isalpha()
-            and bare.isascii()
-            and any(bare in row for row in _KEY_ROWS)
-        ):
-            return "junk"
-        if len(bare) >= 3 and len(set(bare)) == 1:
-            return "junk"
-        return ""
+        return "junk" if _looks_like_junk(query) else ""
+
+
+def _looks_like_junk(query: Query) -> bool:
+    """An IP address, a URL or e-mail address, a keyboard run or one letter repeated."""
+    bare = query.folded.replace(" ", "")
+    if _IPV4.match(query.folded) or _URL.search(query.key):
+        return True
+    if (
+        len(bare) >= 5
+        and bare.isalpha()
+        and bare.isascii()
+        and any(bare in row for row in _KEY_ROWS)
+    ):
+        return True
+    return len(bare) >= 3 and len(set(bare)) == 1
 
 
 class FlagStage:
+    """Flag emoji: a country, or a subdivision for the tag flags (Scotland, Wales)."""
+
+    name = "flag"
+
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
 
-    def resolve(self, query: Query) -> list[Mention]:
+    def resolve(self, query: Query, spans: Sequence[Span] = ()) -> list[Mention]:
         out = []
         for code in query.flags:
             place = (
@@ -246,10 +267,14 @@ class FlagStage:
 
 
 class PostcodeStage:
+    """Postcodes: the area their prefix names, else the country their format belongs to."""
+
+    name = "postcode"
+
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
 
-    def resolve(self, query: Query) -> list[Mention]:
+    def resolve(self, query: Query, spans: Sequence[Span] = ()) -> list[Mention]:
         out = []
         for pc in query.postcodes:
             if ":" not in pc:
@@ -271,17 +296,16 @@ class PostcodeStage:
 class _SpanStage:
     """Shared logic of the exact-name stages: keep the readings of one place kind."""
 
+    name = ""
     kinds: tuple[str, ...] = ()
 
-    def __init__(self, index: PlaceIndex, segmenter: Segmenter) -> None:
+    def __init__(self, index: PlaceIndex) -> None:
         self.index = index
-        self.segmenter = segmenter
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         return True
 
-    def resolve(self, query: Query, spans: list[Span] | None = None) -> list[Mention]:
-        spans = self.segmenter.spans(query) if spans is None else spans
+    def resolve(self, query: Query, spans: Sequence[Span]) -> list[Mention]:
         out = []
         for span in spans:
             best: dict[int, Reading] = {}  # one reading per place: its strongest allowed name
@@ -317,7 +341,13 @@ def _code_allowed(query: Query, span: Span, origin: str, country: str = "") -> b
         return whole or upper or (own_part and later)
     if origin == "code3":
         return upper or (key not in UNSAFE_ALPHA3 and (whole or own_part))
-    # postal abbreviations and ISO subdivision code suffixes
+    return _subdivision_code_allowed(key, origin, upper, whole, later, country)
+
+
+def _subdivision_code_allowed(
+    key: str, origin: str, upper: bool, whole: bool, later: bool, country: str
+) -> bool:
+    """Postal abbreviations and ISO subdivision code suffixes (``_code_allowed``)."""
     if origin == "sub_code":
         return upper and later
     if key in LOWER_WORD_CODES and not upper:
@@ -330,6 +360,7 @@ def _code_allowed(query: Query, span: Span, origin: str, country: str = "") -> b
 
 
 class CountryStage(_SpanStage):
+    name = "country"
     kinds = ("country",)
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
@@ -339,6 +370,7 @@ class CountryStage(_SpanStage):
 
 
 class SubdivisionStage(_SpanStage):
+    name = "subdivision"
     kinds = ("subdivision", "area", "region")
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
@@ -348,6 +380,7 @@ class SubdivisionStage(_SpanStage):
 
 
 class CityStage(_SpanStage):
+    name = "city"
     kinds = ("city",)
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
@@ -356,26 +389,30 @@ class CityStage(_SpanStage):
         if hit.origin == "alias":
             return True
         if len(span.key.replace(".", "")) <= 2 and span.key.isascii():
-            # Two capitals are a code, not the village of "As"; two-letter alternate names are noise.
+            # Two capitals are a code, not the village of "As";
+            # two-letter alternate names are noise.
             return hit.origin != "alt" and not _typed(query, span).isupper()
         return True
 
 
-class FuzzyStage:
-    """Typo-tolerant match of words no exact stage explained.
+class FuzzyMatcher:
+    """Typo-tolerant match of words no exact stage explained (run by ``mentions.py``).
 
     Blocked by first letter and only over places of 15,000+ people, countries
     and subdivisions, so it stays fast and never fires on short tokens.
     """
 
-    min_len = 6
+    min_len = FUZZY_MIN_LEN
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
 
     @staticmethod
     def max_edits(text: str) -> int:
-        """Edits tolerated (insert, delete, substitute, swap neighbours): 1 up to 8 letters, then 2."""
+        """Edits tolerated (insert, delete, substitute, swap neighbours).
+
+        1 up to 8 letters, then 2.
+        """
         return 1 if len(text) <= 8 else 2
 
     def match(self, phrase: str, pi: int, start: int) -> Mention | None:
@@ -398,7 +435,8 @@ class FuzzyStage:
             readings.append(Reading(place, origin, place_weight(place, origin), similarity))
         return Mention(phrase, pi, start, readings, source="fuzzy")
 
-    def resolve(self, query: Query, covered: set[tuple[int, int]]) -> list[Mention]:
+    def match_free_words(self, query: Query, covered: set[tuple[int, int]]) -> list[Mention]:
+        """Mentions for runs of words outside ``covered`` ((part, word) pairs) and stopwords."""
         out = []
         for pi, part in enumerate(query.parts):
             words = [t.key for t in part.tokens]
@@ -407,16 +445,7 @@ class FuzzyStage:
             free = [
                 i for i in range(len(words)) if (pi, i) not in covered and words[i] not in STOPWORDS
             ]
-            if not free:
-                continue
-            # Runs of uncovered words, tried as one phrase.
-            runs: list[list[int]] = []
-            for i in free:
-                if runs and runs[-1][-1] == i - 1:
-                    runs[-1].append(i)
-                else:
-                    runs.append([i])
-            for run in runs:
+            for run in _runs(free):
                 phrase = " ".join(words[i] for i in run)
                 if len(phrase.replace(" ", "")) < self.min_len or not phrase.isascii():
                     continue
@@ -424,3 +453,14 @@ class FuzzyStage:
                 if m is not None:
                     out.append(m)
         return out
+
+
+def _runs(indices: list[int]) -> list[list[int]]:
+    """Consecutive runs of ascending word indices: [1, 2, 4] → [[1, 2], [4]]."""
+    runs: list[list[int]] = []
+    for i in indices:
+        if runs and runs[-1][-1] == i - 1:
+            runs[-1].append(i)
+        else:
+            runs.append([i])
+    return runs

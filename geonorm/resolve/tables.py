@@ -1,333 +1,147 @@
-"""Tables of place knowledge the resolver consults.
+"""Tables of place knowledge the resolver consults, read from ``gazetteer/*.csv``.
 
-Each is a fact of the trade, not a tuned number (those live in ``tuning.py``).
+Each table is a CSV file with a header line (see ``gazetteer/SOURCES.md`` for
+where its values come from). They are read once, when this module is imported;
+a missing or malformed file raises :class:`~geonorm.errors.PlaceIndexError` naming
+the file and line.
 """
 
 from __future__ import annotations
 
+import csv
 import re
+from collections.abc import Sequence
+from pathlib import Path
 
-# Postcode shapes whose format names the country (common practice; formats
-# from memory: UK outward+inward code, Canadian FSA+LDU, Irish Eircode).
-POSTCODE_FORMATS = {
-    "GB": re.compile(r"(?<!\S)([a-z]{1,2}\d[a-z\d]?) ?\d[a-z]{2}(?!\S)"),
-    "CA": re.compile(r"(?<!\S)([a-z]\d[a-z]) ?\d[a-z]\d(?!\S)"),
-    "IE": re.compile(r"(?<!\S)([a-z]\d{2}) ?[a-z\d]{4}(?!\S)"),
-}
+from ..errors import PlaceIndexError
+from ..paths import gazetteer_dir
 
-STREET_WORDS = frozenset(
-    [
-        "street",
-        "rd",
-        "road",
-        "ave",
-        "avenue",
-        "blvd",
-        "boulevard",
-        "lane",
-        "ln",
-        "dr",
-        "drive",
-        "apt",
-        "suite",
-        "unit",
-        "plot",
-        "floor",
-        "rua",
-        "av",
-        "avenida",
-        "calle",
-        "carrer",
-        "via",
-        "viale",
-        "piazza",
-        "rue",
-        "chemin",
-        "allee",
-        "strasse",
-        "str",
-        "ul",
-        "ulica",
-        "prospekt",
-        "block",
-        "sector",
-        "ku",
-        "chome",
-        "marg",
-        "flat",
-        "box",
-    ]
-)
+__all__ = [
+    "BARE_POSTAL_COUNTRIES",
+    "GENERIC_PLACE_WORDS",
+    "LOWER_WORD_CODES",
+    "POSTCODE_FORMATS",
+    "SAINT_ABBREVIATIONS",
+    "SOVEREIGN",
+    "STOPWORDS",
+    "STREET_SUFFIX_ONLY",
+    "STREET_WORDS",
+    "UNSAFE_ALPHA3",
+    "read_table",
+]
+
+
+def _bad_line(path: Path, line: int, problem: str, columns: Sequence[str]) -> PlaceIndexError:
+    return PlaceIndexError(
+        f"curated table {path}: line {line}: {problem}",
+        hint=f"fix or remove that line; the header is: {','.join(columns)}",
+    )
+
+
+def _field_count(row: dict, width: int) -> int:
+    """How many fields a line had: csv.DictReader files extra ones under None and
+    fills missing ones with None."""
+    extra = row.get(None)
+    if extra is not None:
+        return width + len(extra)
+    return sum(v is not None for v in row.values())
+
+
+def read_table(
+    name: str,
+    required: Sequence[str],
+    optional: Sequence[str] = (),
+    folder: Path | None = None,
+) -> list[dict[str, str]]:
+    """The rows of ``gazetteer/<name>``, values stripped.
+
+    ``required`` columns must be filled on every row, ``optional`` ones may be
+    empty; other columns (comments) are kept as they are.
+    """
+    path = (folder or gazetteer_dir()) / name
+    columns = [*required, *optional]
+    if not path.is_file():
+        raise PlaceIndexError(
+            f"curated table {name} is missing from {path.parent}",
+            hint="reinstall geonorm; the gazetteer/ folder must ship with it",
+        )
+    try:
+        with open(path, encoding="utf-8", newline="") as fh:
+            reader = csv.DictReader(fh)
+            header = reader.fieldnames or []
+            lacking = [c for c in columns if c not in header]
+            if lacking:
+                raise _bad_line(path, 1, f"the header lacks {', '.join(lacking)}", columns)
+            rows = []
+            for row in reader:
+                fields = _field_count(row, len(header))
+                if fields != len(header):
+                    problem = f"{fields} fields where the header has {len(header)}"
+                    raise _bad_line(path, reader.line_num, problem, header)
+                clean = {k: v.strip() for k, v in row.items()}
+                empty = [c for c in required if not clean[c]]
+                if empty:
+                    raise _bad_line(path, reader.line_num, f"empty {', '.join(empty)}", header)
+                rows.append(clean)
+    except (UnicodeDecodeError, csv.Error) as exc:
+        raise PlaceIndexError(
+            f"curated table {path} cannot be read ({exc})",
+            hint="save it as UTF-8 CSV with a header line",
+        ) from exc
+    return rows
+
+
+def _words(name: str, column: str = "word") -> frozenset[str]:
+    return frozenset(row[column] for row in read_table(name, [column]))
+
+
+def _postcode_formats(folder: Path | None = None) -> dict[str, re.Pattern[str]]:
+    formats = {}
+    rows = read_table("postcode_formats.csv", ["country", "pattern"], folder=folder)
+    for number, row in enumerate(rows, 2):  # one line per row, after the header
+        try:
+            formats[row["country"]] = re.compile(row["pattern"])
+        except re.error as exc:
+            path = (folder or gazetteer_dir()) / "postcode_formats.csv"
+            bad = _bad_line(path, number, f"bad regular expression ({exc})", list(row))
+            raise bad from exc
+    return formats
+
+
+# Postcode shapes whose format names the country (UK, Canadian and Irish codes);
+# tried in the order of the file.
+POSTCODE_FORMATS = _postcode_formats()
+
+# Words that make a part the street line of an address.
+STREET_WORDS = _words("street_words.csv")
 
 # "St" ends a street name ("Baggot St") but starts a saint's name ("St Helier").
-STREET_SUFFIX_ONLY = frozenset({"st", "str"})
+STREET_SUFFIX_ONLY = _words("street_suffix_only.csv")
 
-# Words that name a part of many countries ("South", "Central", "Capital"): as the
-# name of a subdivision they would match everywhere, so they are not indexed for
-# subdivisions (common practice).
-GENERIC_PLACE_WORDS = frozenset(
-    [
-        "north",
-        "south",
-        "east",
-        "west",
-        "central",
-        "centre",
-        "center",
-        "capital",
-        "northern",
-        "southern",
-        "eastern",
-        "western",
-        "middle",
-        "upper",
-        "lower",
-        "coast",
-        "coastal",
-        "island",
-        "islands",
-        "lake",
-        "lakes",
-        "river",
-        "valley",
-        "mountain",
-        "mountains",
-        "border",
-        "northeast",
-        "northwest",
-        "southeast",
-        "southwest",
-        "north",
-        "east",
-        "north",
-        "west",
-        "south",
-        "east",
-        "south",
-        "west",
-        "the",
-        "south",
-        "the",
-        "north",
-        "the",
-        "east",
-        "the",
-        "west",
-        "interior",
-        "highlands",
-        "lowlands",
-    ]
-) | {
-    "north east",
-    "north west",
-    "south east",
-    "south west",
-    "the south",
-    "the north",
-    "the east",
-    "the west",
-}
+# Words that name a part of many countries ("South", "Central", "Capital"): not
+# indexed as names of subdivisions, where they would match everywhere.
+GENERIC_PLACE_WORDS = _words("generic_place_words.csv")
 
-SAINT_ABBREVIATIONS = (("saint ", "st "), ("sainte ", "ste "), ("mount ", "mt "), ("fort ", "ft "))
-
-# Territories with their own ISO 3166-1 code and the state they belong to
-# (from memory; ISO 3166-1 remarks). "Hong Kong, China" means HK.
-SOVEREIGN = {
-    **dict.fromkeys(["HK", "MO"], "CN"),
-    **dict.fromkeys(["PR", "GU", "VI", "AS", "MP", "UM"], "US"),
-    **dict.fromkeys(["GL", "FO"], "DK"),
-    **dict.fromkeys(["AW", "CW", "SX", "BQ"], "NL"),
-    **dict.fromkeys(
-        ["BM", "KY", "GI", "VG", "AI", "MS", "TC", "FK", "SH", "PN", "IO", "GS", "JE", "GG", "IM"],
-        "GB",
-    ),
-    **dict.fromkeys(["RE", "GP", "MQ", "GF", "YT", "NC", "PF", "PM", "BL", "MF", "WF", "TF"], "FR"),
-    "AX": "FI",
-    "SJ": "NO",
-    "BV": "NO",
-    **dict.fromkeys(["CX", "CC", "NF", "HM"], "AU"),
-    **dict.fromkeys(["TK", "NU", "CK"], "NZ"),
-}
-
-# Short function words never looked up alone (common practice for gazetteer
-# matching: they collide with tiny places named "And", "Of", "Is").
-STOPWORDS = frozenset(
-    [
-        "a",
-        "an",
-        "and",
-        "or",
-        "the",
-        "of",
-        "in",
-        "on",
-        "at",
-        "to",
-        "is",
-        "it",
-        "be",
-        "by",
-        "for",
-        "from",
-        "with",
-        "near",
-        "but",
-        "not",
-        "my",
-        "our",
-        "we",
-        "i",
-        "me",
-        "y",
-        "e",
-        "et",
-        "und",
-        "oder",
-        "der",
-        "die",
-        "das",
-        "den",
-        "dem",
-        "des",
-        "le",
-        "la",
-        "les",
-        "l",
-        "du",
-        "des",
-        "de",
-        "da",
-        "do",
-        "dos",
-        "das",
-        "di",
-        "del",
-        "al",
-        "el",
-        "los",
-        "las",
-        "lo",
-        "o",
-        "u",
-        "en",
-        "em",
-        "no",
-        "na",
-        "nos",
-        "nas",
-        "im",
-        "am",
-        "um",
-        "zu",
-        "bei",
-        "von",
-        "und",
-    ]
+# Long and short forms of a leading word ("saint " / "st "), each with its space.
+SAINT_ABBREVIATIONS = tuple(
+    (row["long"] + " ", row["short"] + " ")
+    for row in read_table("saint_abbreviations.csv", ["long", "short"])
 )
+
+# Territories with their own ISO 3166-1 code and the state they belong to.
+SOVEREIGN = {
+    row["territory"]: row["sovereign"]
+    for row in read_table("sovereign.csv", ["territory", "sovereign"])
+}
+
+# Short function words never looked up alone.
+STOPWORDS = _words("stopwords.csv")
 
 # Alpha-3 codes that are also everyday words or names: read only when typed in capitals.
-UNSAFE_ALPHA3 = frozenset(
-    [
-        "and",
-        "are",
-        "ben",
-        "bol",
-        "bra",
-        "can",
-        "che",
-        "chn",
-        "col",
-        "com",
-        "cub",
-        "dom",
-        "fin",
-        "fro",
-        "gab",
-        "gin",
-        "hun",
-        "ind",
-        "ita",
-        "jam",
-        "ken",
-        "lie",
-        "mar",
-        "mac",
-        "mli",
-        "nor",
-        "pan",
-        "per",
-        "pol",
-        "pry",
-        "sau",
-        "som",
-        "sur",
-        "tan",
-        "ton",
-        "tun",
-        "tur",
-        "vat",
-        "wsm",
-        "arm",
-        "aut",
-        "bel",
-        "cod",
-        "cok",
-        "gum",
-        "hmd",
-        "ncl",
-        "niu",
-        "pak",
-        "per",
-        "pri",
-        "sen",
-        "slv",
-        "tgo",
-        "yem",
-        "mus",
-        "mda",
-    ]
-)
+UNSAFE_ALPHA3 = _words("unsafe_alpha3.csv", "code")
 
 # Two-letter codes that are everyday words when typed in lower case.
-LOWER_WORD_CODES = frozenset(
-    [
-        "in",
-        "at",
-        "to",
-        "be",
-        "is",
-        "it",
-        "me",
-        "my",
-        "no",
-        "so",
-        "us",
-        "am",
-        "an",
-        "as",
-        "by",
-        "do",
-        "go",
-        "he",
-        "hi",
-        "id",
-        "if",
-        "la",
-        "lo",
-        "ma",
-        "mo",
-        "ne",
-        "of",
-        "oh",
-        "ok",
-        "on",
-        "or",
-        "pa",
-        "sa",
-        "al",
-        "co",
-        "de",
-    ]
-)
+LOWER_WORD_CODES = _words("lower_word_codes.csv", "code")
 
-BARE_POSTAL_COUNTRIES = frozenset({"US", "CA", "AU"})
+# Countries whose subdivision abbreviations stand for a place on their own.
+BARE_POSTAL_COUNTRIES = _words("bare_postal_countries.csv", "country")

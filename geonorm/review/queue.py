@@ -12,18 +12,22 @@ from __future__ import annotations
 
 import csv
 import re
-import time
 from collections import Counter
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import polars as pl
 import pycountry
 
+from .. import codes
+from ..batch.answers import resolve_keys
 from ..batch.cache import Cache
 from ..batch.formats import open_source, read_columns, read_header
+from ..clock import utc_stamp
 from ..errors import InputError
 from ..resolve.normalize import fold, normalize_key
+from ..resolve.resolution import Resolution
 from ..resolve.resolver import Resolver
 
 __all__ = [
@@ -80,39 +84,83 @@ def restore(value: str) -> str:
     return value
 
 
+_GEO_READ = ("country", "subdivision", "city", "confidence", "reason", "status")
+_LOCATION_NAMES = ("location", "loc", "place", "city", "address", "where")
+
+
 def _read_cleaned(
     path: str | Path, column: str | None, prefix: str, cache: Cache
-) -> tuple[pl.DataFrame, str]:
+) -> tuple[pl.DataFrame, str, str]:
+    """The cleaned file grouped by text and geo values; its location column; the
+    remote service its run used ('' for none)."""
     source = open_source(path)
     try:
         header = read_header(source)
-        needed = [
-            prefix + f for f in ("country", "subdivision", "city", "confidence", "reason", "status")
-        ]
+        needed = [prefix + f for f in _GEO_READ]
         missing = [c for c in needed if c not in header]
         if missing:
             raise InputError(
                 f"{source.name} has no {', '.join(missing)} column(s): it is not a cleaned file",
                 hint="run geonorm clean on it first, and pass its output here",
             )
+        run = cache.run_info(str(Path(path).resolve())) or {}
+        column = column or run.get("column") or None
         if column is None:
-            column = cache.run_column(str(Path(path).resolve()))
-        if column is None:
-            guesses = [
-                h
-                for h in header
-                if fold(h) in ("location", "loc", "place", "city", "address", "where")
-            ]
+            guesses = [h for h in header if fold(h) in _LOCATION_NAMES]
             column = guesses[0] if len(guesses) == 1 else None
         if column is None or column not in header:
             raise InputError(
                 f"cannot tell which column of {source.name} holds the location text",
-                hint=f"pass --column, one of: {', '.join(h for h in header if h not in needed)}",
+                hint=f"pass `column`, one of: {', '.join(h for h in header if h not in needed)}",
             )
         frame = read_columns(source, [column, *needed])
-        return frame.group_by([column, *needed]).len().rename({column: "__text"}), column
+        grouped = frame.group_by([column, *needed]).len().rename({column: "__text"})
+        return grouped, column, run.get("remote", "")
     finally:
         source.cleanup()
+
+
+def _is_doubtful(row: dict[str, Any], prefix: str, below: float | None) -> bool:
+    status, conf = row[prefix + "status"], float(row[prefix + "confidence"] or 0)
+    return status in ("review", "unmatched") or (
+        status == "matched" and below is not None and conf < below
+    )
+
+
+def _queue_line(key: str, rows: int, text: str, row: dict[str, Any], answer: Resolution, p: str):
+    """One line of the queue: the file's guess, and the other candidates of the same answer."""
+    guess = row[p + "country"] or ""
+    conf = float(row[p + "confidence"] or 0) if guess else 0.0
+    # Doubt: 1 − confidence for a guess; a world region is surely no single country (0.1).
+    doubt = 0.1 if row[p + "reason"] == "world_region" else 1 - conf
+    alts = [c for c in answer.candidates if c.country != guess][:3]
+    return {
+        "text": text,
+        "rows": rows,
+        "impact": round(rows * doubt, 2),
+        "guess_country": guess,
+        "guess_subdivision": row[p + "subdivision"] or "",
+        "guess_city": row[p + "city"] or "",
+        "confidence": f"{conf:.3f}" if guess else "",
+        "reason": row[p + "reason"] or "",
+        "alternatives": "; ".join(f"{c.label()} ({c.score:.2f})" for c in alts),
+        **dict.fromkeys(DECISION_COLUMNS, ""),
+        "__key": key,
+    }
+
+
+def _write_queue(out: str | Path, lines: list[dict[str, Any]]) -> None:
+    try:
+        with open(out, "w", encoding="utf-8", newline="") as fh:
+            # Every cell quoted: a lone \r stays inside quotes.
+            writer = csv.writer(fh, lineterminator="\n", quoting=csv.QUOTE_ALL)
+            writer.writerow(QUEUE_COLUMNS)
+            for d in lines:
+                writer.writerow([neutralise(str(d[c])) for c in QUEUE_COLUMNS])
+    except OSError as exc:
+        raise InputError(
+            f"cannot write {out} ({exc.strerror})", hint="check the folder exists and is writable"
+        ) from exc
 
 
 def export_queue(
@@ -126,65 +174,42 @@ def export_queue(
     cache: Cache | None = None,
     resolver: Resolver | None = None,
 ) -> int:
-    """Write the review queue of a cleaned file; returns the number of lines."""
+    """Write the review queue of a cleaned file; returns the number of lines.
+
+    The guess beside each text is the one in the cleaned file; its alternatives
+    come from the same answer, read back from the cache through the answer
+    pipeline (with the file's own prior, and the remote service its run used).
+    """
     cache = cache or Cache()
-    frame, column = _read_cleaned(cleaned, column, prefix, cache)
+    frame, column, remote = _read_cleaned(cleaned, column, prefix, cache)
     resolver = resolver or Resolver()
-    p = prefix
-    by_key: dict[str, dict] = {}
+    counts: Counter[str] = Counter()
     texts: dict[str, Counter[str]] = {}
+    first_row: dict[str, dict[str, Any]] = {}
     for row in frame.iter_rows(named=True):
-        status, conf = row[p + "status"], float(row[p + "confidence"] or 0)
-        doubtful = status in ("review", "unmatched") or (
-            status == "matched" and below is not None and conf < below
-        )
-        if not doubtful:
-            continue
         text = row["__text"] if row["__text"] is not None else ""
         key = resolver.key(text)
-        texts.setdefault(key, Counter())[text] += row["len"]
-        entry = by_key.setdefault(key, {"rows": 0, "row": row})
-        entry["rows"] += row["len"]
-    lines = []
-    for key, entry in by_key.items():
-        row = entry["row"]
-        text = texts[key].most_common(1)[0][0]
-        conf = float(row[p + "confidence"] or 0) if row[p + "country"] else 0.0
-        # Doubt: 1 − confidence for a guess; a world region is surely no single country (0.1).
-        doubt = 0.1 if row[p + "reason"] == "world_region" else 1 - conf
-        res = resolver.resolve(key)
-        alts = [c for c in res.candidates if c.country != row[p + "country"]][:3]
-        lines.append(
-            {
-                "text": text,
-                "rows": entry["rows"],
-                "impact": round(entry["rows"] * doubt, 2),
-                "guess_country": row[p + "country"] or "",
-                "guess_subdivision": row[p + "subdivision"] or "",
-                "guess_city": row[p + "city"] or "",
-                "confidence": f"{conf:.3f}" if row[p + "country"] else "",
-                "reason": row[p + "reason"] or "",
-                "alternatives": "; ".join(f"{c.label()} ({c.score:.2f})" for c in alts),
-                **dict.fromkeys(DECISION_COLUMNS, ""),
-                "__key": key,
-            }
+        counts[key] += row["len"]
+        if _is_doubtful(row, prefix, below):
+            texts.setdefault(key, Counter())[text] += row["len"]
+            first_row.setdefault(key, row)
+    answers = resolve_keys(counts, resolver=resolver, cache=cache, full=True, remote=remote or None)
+    lines = [
+        _queue_line(
+            key,
+            sum(texts[key].values()),
+            texts[key].most_common(1)[0][0],
+            row,
+            answers.results[key],
+            prefix,
         )
+        for key, row in first_row.items()
+    ]
     lines.sort(key=lambda d: (-d["impact"], -d["rows"], d["text"]))
     if top is not None:
         lines = lines[:top]
-    try:
-        with open(out, "w", encoding="utf-8", newline="") as fh:
-            writer = csv.writer(
-                fh, lineterminator="\n", quoting=csv.QUOTE_ALL
-            )  # a lone \r stays inside quotes
-            writer.writerow(QUEUE_COLUMNS)
-            for d in lines:
-                writer.writerow([neutralise(str(d[c])) for c in QUEUE_COLUMNS])
-    except OSError as exc:
-        raise InputError(
-            f"cannot write {out} ({exc.strerror})", hint="check the folder exists and is writable"
-        ) from exc
-    now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
+    _write_queue(out, lines)
+    now = utc_stamp()
     cache.put_queue(
         [
             {"key": d["__key"], "text": d["text"], "exported_at": now, "file": str(out)}
@@ -215,15 +240,8 @@ class ApplyReport:
 
 
 def _country(code: str) -> str | None:
-    code = code.strip().upper()
-    if code == "XK":
-        return code
-    c = (
-        pycountry.countries.get(alpha_2=code)
-        if len(code) == 2
-        else pycountry.countries.get(alpha_3=code)
-    )
-    return c.alpha_2 if c else None
+    # A decision takes an alpha-2 or alpha-3 code; Kosovo only as XK, not XKX.
+    return None if code.strip().upper() == "XKX" else codes.country(code)
 
 
 def _check(row: dict, line: int, resolver: Resolver) -> tuple[dict | None, Problem | None]:
@@ -263,8 +281,7 @@ def _check(row: dict, line: int, resolver: Resolver) -> tuple[dict | None, Probl
         )
     decision["country"] = country
     if sub:
-        s = pycountry.subdivisions.get(code=sub)
-        if s is None or s.country_code != country:
+        if codes.subdivision_country(sub) != country:
             return None, Problem(
                 line,
                 f"'{sub}' is not an ISO 3166-2 subdivision of {country}; "
@@ -283,21 +300,13 @@ def _check(row: dict, line: int, resolver: Resolver) -> tuple[dict | None, Probl
                 )
             decision.update(city=m["name"].strip(), lat=lat, lon=lon)
         else:
-            places = [
-                h.place
-                for h in resolver.index.lookup(fold(city))
-                if h.place.kind == "city" and h.place.cc == country
-            ]
-            top_sub = resolver.index.subdivisions.get(sub)
-            if sub and top_sub is not None:
-                places = [p for p in places if p.sub == sub] or places
-            if not places:
+            best = codes.find_city(resolver.index, country, city, sub, fallback=True)
+            if best is None:
                 return None, Problem(
                     line,
                     f"no city called '{city}' in {country} in the place index; check the "
                     "spelling, or give coordinates as 'Name (lat, lon)'",
                 )
-            best = max(places, key=lambda p: p.pop)
             decision.update(city=best.name, lat=best.lat, lon=best.lon, geonameid=best.gid)
             if not sub and best.sub:
                 decision["subdivision"] = best.sub
@@ -309,18 +318,11 @@ def _example_sub(country: str) -> str:
     return subs[0] if subs else f"{country}-XX"
 
 
-def apply_decisions(
-    queue: str | Path,
-    *,
-    cache: Cache | None = None,
-    resolver: Resolver | None = None,
-    dry_run: bool = False,
-) -> ApplyReport:
-    """Validate a filled-in queue and store its valid decisions (one transaction)."""
-    cache = cache or Cache()
-    resolver = resolver or Resolver()
-    report = ApplyReport(dry_run=dry_run)
-    path = Path(queue)
+_DECISION_FIELDS = ("country", "subdivision", "city", "lat", "lon", "not_a_place", "note")
+
+
+def _read_queue(path: Path) -> list[tuple[int, dict[str, str]]]:
+    """The queue's rows with their line numbers, cells restored from their neutralised form."""
     if not path.exists():
         raise InputError(
             f"queue file {path} does not exist",
@@ -344,20 +346,42 @@ def apply_decisions(
         raise InputError(
             f"{path} is not UTF-8 text", hint="save the queue as 'CSV UTF-8' from your spreadsheet"
         ) from exc
-    wanted: list[tuple[int, str, dict]] = []
-    for line, row in rows:
+    return rows
+
+
+def _same_decision(stored: dict[str, Any] | None, decision: dict[str, Any]) -> bool:
+    return stored is not None and all(
+        stored[f] == decision[f] or (stored[f] in (None, "") and decision[f] in (None, ""))
+        for f in _DECISION_FIELDS
+    )
+
+
+def apply_decisions(
+    queue: str | Path,
+    *,
+    cache: Cache | None = None,
+    resolver: Resolver | None = None,
+    dry_run: bool = False,
+) -> ApplyReport:
+    """Validate a filled-in queue and store its valid decisions (one transaction)."""
+    cache = cache or Cache()
+    resolver = resolver or Resolver()
+    report = ApplyReport(dry_run=dry_run)
+    path = Path(queue)
+    wanted: list[tuple[int, str, dict[str, Any]]] = []
+    for line, row in _read_queue(path):
         if not any(row.get(c, "").strip() for c in DECISION_COLUMNS[:3]):
             report.skipped += 1
             continue
         decision, problem = _check(row, line, resolver)
-        if problem:
-            report.problems.append(problem)
+        if problem or decision is None:
+            report.problems.extend([problem] if problem else [])
             continue
-        wanted.append((line, resolver.key(row["text"]), {**decision, "text": row["text"]}))  # type: ignore[dict-item]
+        wanted.append((line, resolver.key(row["text"]), {**decision, "text": row["text"]}))
     queued = cache.queued({k for _, k, _ in wanted})
     existing = cache.overrides({k for _, k, _ in wanted})
-    now = time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())
-    to_store: dict[str, dict] = {}
+    now = utc_stamp()
+    to_store: dict[str, dict[str, Any]] = {}
     for line, key, decision in wanted:
         if key not in queued:
             report.problems.append(
@@ -369,11 +393,7 @@ def apply_decisions(
             )
             continue
         same = existing.get(key)
-        fields = ("country", "subdivision", "city", "lat", "lon", "not_a_place", "note")
-        if same and all(
-            same[f] == decision[f] or (same[f] in (None, "") and decision[f] in (None, ""))
-            for f in fields
-        ):
+        if _same_decision(same, decision):
             report.unchanged += 1
             continue
         report.changed += bool(same)

@@ -15,6 +15,7 @@ from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
+from ..batch.answers import count_keys, resolve_keys
 from ..batch.formats import open_source, read_columns, read_header
 from ..errors import InputError
 from ..resolve.calibration import expected_calibration_error, reliability
@@ -58,6 +59,67 @@ def _called(res: Resolution, t: float) -> bool:
     return bool(res.country) and res.reason != Reason.SEVERAL_COUNTRIES and res.confidence >= t
 
 
+def _called_at(pairs: Sequence[tuple[str, Resolution]], t: float) -> tuple[int, int]:
+    """Rows called at threshold ``t``, and how many of them have the true country."""
+    called = [(truth, r) for truth, r in pairs if _called(r, t)]
+    return len(called), sum(1 for truth, r in called if r.country == truth)
+
+
+def _by_threshold(
+    pairs: Sequence[tuple[str, Resolution]], accept: float, positives: int
+) -> list[dict]:
+    table = []
+    for th in sorted({*THRESHOLDS, accept}):
+        called, right = _called_at(pairs, th)
+        table.append(
+            {
+                "threshold": th,
+                "called": called,
+                "precision": _ratio(right, called),
+                "coverage": _ratio(right, positives),
+            }
+        )
+    return table
+
+
+def _threshold_for(
+    pairs: Sequence[tuple[str, Resolution]], target: float, positives: int
+) -> tuple[float | None, float | None]:
+    """The lowest threshold (in steps of 0.01) reaching ``target`` precision, and its coverage."""
+    for step in range(0, 101):
+        th = step / 100
+        called, right = _called_at(pairs, th)
+        if called and right / called >= target:
+            return th, _ratio(right, positives)
+    return None, None
+
+
+def _subdivisions(
+    pairs: Sequence[tuple[str, Resolution]], truth_subdivisions: Sequence[str]
+) -> tuple[float, int]:
+    """Share of matched rows of the right country with the right subdivision, and their count."""
+    subs = [
+        (s, r)
+        for s, (t, r) in zip(truth_subdivisions, pairs, strict=False)
+        if s and r.status == Status.MATCHED and r.country == t
+    ]
+    return _ratio(sum(r.subdivision == s for s, r in subs), len(subs)), len(subs)
+
+
+def _calibration(pairs: Sequence[tuple[str, Resolution]]) -> tuple[list[dict], float]:
+    """Reliability table and ECE over the rows given a country."""
+    given = [(t, r) for t, r in pairs if r.country]
+    conf = [r.confidence for _, r in given]
+    ok = [r.country == t for t, r in given]
+    return reliability(conf, ok), expected_calibration_error(conf, ok)
+
+
+def _confusions(matched: Sequence[tuple[str, Resolution]]) -> list[dict]:
+    """The ten commonest (true country, given country) mistakes among matched rows."""
+    counts = Counter((t or "-", r.country) for t, r in matched if r.country != t)
+    return [{"truth": a, "given": b, "rows": n} for (a, b), n in counts.most_common(10)]
+
+
 def score_rows(
     pairs: Sequence[tuple[str, Resolution]],
     *,
@@ -71,22 +133,7 @@ def score_rows(
     tp = sum(1 for t, r in matched if t and r.country == t)
     precision, recall = _ratio(tp, len(matched)), _ratio(tp, positives)
     f1 = round(2 * precision * recall / (precision + recall), 4) if precision + recall else 0.0
-    table = []
-    for th in sorted({*THRESHOLDS, accept}):
-        called = [(t, r) for t, r in pairs if _called(r, th)]
-        right = sum(1 for t, r in called if r.country == t)
-        table.append(
-            {
-                "threshold": th,
-                "called": len(called),
-                "precision": _ratio(right, len(called)),
-                "coverage": _ratio(right, positives),
-            }
-        )
-    given = [(t, r) for t, r in pairs if r.country]
-    conf = [r.confidence for _, r in given]
-    ok = [r.country == t for t, r in given]
-    confusions = Counter((t or "-", r.country) for t, r in matched if r.country != t)
+    reliability_table, ece = _calibration(pairs)
     report = ScoreReport(
         rows=len(pairs),
         positives=positives,
@@ -96,33 +143,18 @@ def score_rows(
         precision=precision,
         recall=recall,
         f1=f1,
-        by_threshold=table,
-        reliability=reliability(conf, ok),
-        ece=expected_calibration_error(conf, ok),
-        confusions=[
-            {"truth": a, "given": b, "rows": n} for (a, b), n in confusions.most_common(10)
-        ],
+        by_threshold=_by_threshold(pairs, accept, positives),
+        reliability=reliability_table,
+        ece=ece,
+        confusions=_confusions(matched),
         target_precision=target_precision,
     )
     if target_precision is not None:
-        for step in range(0, 101):
-            th = step / 100
-            called = [(t, r) for t, r in pairs if _called(r, th)]
-            right = sum(1 for t, r in called if r.country == t)
-            if called and right / len(called) >= target_precision:
-                report.threshold_for_target, report.coverage_at_target = (
-                    th,
-                    _ratio(right, positives),
-                )
-                break
+        report.threshold_for_target, report.coverage_at_target = _threshold_for(
+            pairs, target_precision, positives
+        )
     if truth_subdivisions is not None:
-        subs = [
-            (s, r)
-            for s, (t, r) in zip(truth_subdivisions, pairs)
-            if s and r.status == Status.MATCHED and r.country == t
-        ]
-        report.subdivision_n = len(subs)
-        report.subdivision_accuracy = _ratio(sum(r.subdivision == s for s, r in subs), len(subs))
+        report.subdivision_accuracy, report.subdivision_n = _subdivisions(pairs, truth_subdivisions)
     return report
 
 
@@ -142,13 +174,14 @@ def score_file(
     try:
         header = read_header(source)
         for name, what in (
-            (column, "--column"),
-            (truth, "--truth"),
-            (truth_subdivision, "--truth-subdivision"),
+            (column, "`column`"),
+            (truth, "`truth`"),
+            (truth_subdivision, "`truth_subdivision`"),
         ):
             if name is not None and name not in header:
                 raise InputError(
-                    f"column {name!r} is not in {source.name}; its columns are: {', '.join(header)}",
+                    f"column {name!r} is not in {source.name}; "
+                    f"its columns are: {', '.join(header)}",
                     hint=f"pass the right name with {what}",
                 )
         frame = read_columns(source, [c for c in (column, truth, truth_subdivision) if c])
@@ -157,8 +190,8 @@ def score_file(
     resolver = resolver or Resolver(accept=accept)
     texts = frame.get_column(column).to_list()
     truths = [t.strip().upper() for t in frame.get_column(truth).to_list()]
-    results = resolver.resolve_many(texts)
-    pairs = [(t, results[x]) for t, x in zip(truths, texts)]
+    answers = resolve_keys(count_keys(texts, resolver), resolver=resolver, accept=resolver.accept)
+    pairs = [(t, answers.results[resolver.key(x)]) for t, x in zip(truths, texts, strict=True)]
     subs = (
         [s.strip().upper() for s in frame.get_column(truth_subdivision).to_list()]
         if truth_subdivision

@@ -22,8 +22,8 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from fixture_server import Behaviour, FixtureServer, adapter_file, hit
 
-from geonorm.batch.clean import clean_file
 from geonorm.batch.cache import Cache
+from geonorm.batch.clean import clean_file
 from geonorm.demo import demo_file
 
 

@@ -1,0 +1,75 @@
+"""Where the cascade runs for the strings the cache does not know.
+
+An engine takes the resolver and the missing keys and hands back answers in
+chunks; the answer pipeline stores each chunk in the cache as it arrives, so
+an interrupted run keeps what it finished. ``LocalEngine`` uses this
+machine's cores.
+"""
+
+from __future__ import annotations
+
+import multiprocessing as mp
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Protocol
+
+from ..resolve.index import PlaceIndex
+from ..resolve.resolution import Resolution
+from ..resolve.resolver import Resolver
+
+__all__ = ["CHUNK", "Engine", "LocalEngine"]
+
+CHUNK = 2000  # distinct strings per task and per cache commit
+
+Take = Callable[[dict[str, Resolution]], None]
+
+
+class Engine(Protocol):
+    """Resolve ``keys`` with ``resolver``, calling ``take`` with each finished chunk."""
+
+    def resolve(self, resolver: Resolver, keys: Sequence[str], take: Take) -> None: ...
+
+
+class LocalEngine:
+    """A process pool on this machine (``workers`` processes; 1 = in this process).
+
+    Forked workers share the loaded index (read-only memory and the OS page
+    cache); where there is no fork, spawned workers open the index file again.
+    """
+
+    def __init__(self, workers: int = 1, chunk: int = CHUNK) -> None:
+        self.workers = workers
+        self.chunk = chunk
+
+    def resolve(self, resolver: Resolver, keys: Sequence[str], take: Take) -> None:
+        chunks = [keys[i : i + self.chunk] for i in range(0, len(keys), self.chunk)]
+        if self.workers <= 1 or len(chunks) <= 1:
+            for chunk in chunks:
+                take({k: resolver.resolve(k) for k in chunk})
+            return
+        method = "fork" if "fork" in mp.get_all_start_methods() else "spawn"
+        ctx = mp.get_context(method)
+        shared = resolver if method == "fork" else None
+        with ctx.Pool(
+            self.workers,
+            initializer=_worker_init,
+            initargs=(shared, str(resolver.index.path), resolver.accept),
+        ) as pool:
+            for pairs in pool.imap(_worker_resolve, chunks):
+                take(dict(pairs))
+
+
+_WORKER: Resolver | None = None
+
+
+def _worker_init(resolver: Resolver | None, index_path: str, accept: float) -> None:
+    global _WORKER
+    if resolver is None:  # spawn start method: open the index file again (no rebuild)
+        resolver = Resolver(PlaceIndex(Path(index_path)), accept=accept)
+    resolver.index.reopen()
+    _WORKER = resolver
+
+
+def _worker_resolve(keys: Sequence[str]) -> list[tuple[str, Resolution]]:
+    assert _WORKER is not None
+    return [(k, _WORKER.resolve(k)) for k in keys]

@@ -1,0 +1,250 @@
+"""The decision, pruning and file prior on hand-made mentions: no place index needed.
+
+Populations are round figures of the real places; only their order of size matters.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import pytest
+
+from geonorm.resolve import prior
+from geonorm.resolve.calibration import Calibration
+from geonorm.resolve.decide import (
+    Group,
+    city_point,
+    country_shares,
+    decide,
+    drop_minor_places,
+    group_places,
+    weigh,
+)
+from geonorm.resolve.index import Place
+from geonorm.resolve.mentions import prune
+from geonorm.resolve.normalize import normalize
+from geonorm.resolve.resolution import Candidate, Reason, Resolution, Status
+from geonorm.resolve.stages import Mention, Reading, place_weight
+from geonorm.resolve.tables import SOVEREIGN
+
+_ids = itertools.count(1)
+
+
+def place(kind: str, cc: str, name: str, pop: int, sub: str = "", fame: int = 20) -> Place:
+    return Place(next(_ids), kind, cc, sub, name, 1.0, 2.0, pop, next(_ids), fame)
+
+
+def reading(p: Place, origin: str = "name") -> Reading:
+    return Reading(p, origin, place_weight(p, origin))
+
+
+def mention(text: str, *readings: Reading, part: int = 0, start: int = 0) -> Mention:
+    return Mention(text, part, start, list(readings))
+
+
+PERTH_AU = place("city", "AU", "Perth", 2_000_000, "AU-WA")
+PERTH_GB = place("city", "GB", "Perth", 47_000, "GB-SCT")
+SCOTLAND = place("subdivision", "GB", "Scotland", 5_400_000, "GB-SCT")
+LISBON = place("city", "PT", "Lisbon", 500_000, "PT-11")
+BERLIN = place("city", "DE", "Berlin", 3_400_000, "DE-BE")
+BRAZIL = place("country", "BR", "Brazil", 210_000_000)
+HONG_KONG = place("country", "HK", "Hong Kong", 7_400_000)
+HONG_KONG_CITY = place("city", "HK", "Hong Kong", 7_400_000)
+CHINA = place("country", "CN", "China", 1_400_000_000)
+
+
+def test_city_qualified_by_its_country_part():
+    # Perth, Western Australia is far larger, but the text says Scotland.
+    mentions = [
+        mention("perth", reading(PERTH_AU), reading(PERTH_GB)),
+        mention("scotland", reading(SCOTLAND), part=1),
+    ]
+    res = decide(normalize("Perth, Scotland"), mentions)
+    assert (res.country, res.subdivision, res.city) == ("GB", "GB-SCT", "Perth")
+    assert res.reason is Reason.CITY_WITH_CONTEXT
+    assert res.evidence == {"GB": 1.0}
+
+
+def test_container_joins_the_place_before_it():
+    perth = mention("perth", reading(PERTH_AU), reading(PERTH_GB))
+    scotland = mention("scotland", reading(SCOTLAND), part=1)
+    groups, qualifiers = group_places([perth, scotland])
+    assert len(groups) == 1 and qualifiers == []
+    weighed = weigh(groups[0], qualifiers)
+    assert weighed.dist == {"GB": 1.0}
+    assert weighed.kept[0] == [reading(PERTH_GB)]  # Perth, Western Australia is not kept
+    assert weighed.mentions == groups[0].mentions
+
+
+def test_cities_in_two_countries_go_to_review():
+    mentions = [mention("lisbon", reading(LISBON)), mention("berlin", reading(BERLIN), part=1)]
+    res = decide(normalize("Lisbon / Berlin"), mentions)
+    assert res.reason is Reason.SEVERAL_COUNTRIES and res.status is Status.REVIEW
+    assert res.country == ""
+    assert [(c.country, c.city) for c in res.candidates] == [("PT", "Lisbon"), ("DE", "Berlin")]
+
+
+def test_territory_named_with_its_sovereign_is_the_territory():
+    assert SOVEREIGN["HK"] == "CN"
+    mentions = [
+        mention("hong kong", reading(HONG_KONG), reading(HONG_KONG_CITY)),
+        mention("china", reading(CHINA), part=1),
+    ]
+    res = decide(normalize("Hong Kong, China"), mentions)
+    assert res.country == "HK"
+    assert res.city == "Hong Kong"
+
+
+def test_nationality_word_is_not_a_second_place():
+    mentions = [
+        mention("brazilian", reading(BRAZIL, "adjective"), start=1),
+        mention("lisbon", reading(LISBON), start=3),
+    ]
+    res = decide(normalize("proud Brazilian in Lisbon"), mentions)
+    assert (res.country, res.city) == ("PT", "Lisbon")
+
+
+def test_drop_minor_places_never_drops_every_place():
+    portugal = place("country", "PT", "Portugal", 10_000_000)
+    groups, _ = group_places(
+        [
+            mention("brazilian", reading(BRAZIL, "adjective")),
+            mention("portuguese", reading(portugal, "adjective"), start=1),
+        ]
+    )
+    places = [weigh(g, []) for g in groups]
+    assert len(places) == 2 and drop_minor_places(places) == places
+
+
+def test_unmatched_without_mentions_and_for_world_regions():
+    assert decide(normalize("xyz"), []).reason is Reason.NO_MATCH
+    asia = place("region", "", "Southeast Asia", 0)
+    assert decide(normalize("Southeast Asia"), [mention("se asia", reading(asia))]).reason is (
+        Reason.WORLD_REGION
+    )
+
+
+def test_trailing_abbreviation_that_fits_nothing_is_dropped():
+    texas = place("subdivision", "US", "Texas", 29_000_000, "US-TX")
+    groups, _ = group_places(
+        [mention("lisbon", reading(LISBON)), mention("tx", reading(texas, "postal"), part=1)]
+    )
+    assert [len(g.mentions) for g in groups] == [1]
+
+
+def test_country_shares_take_the_heaviest_reading_per_country():
+    villages = [place("city", "US", "San Francisco", 1_000) for _ in range(12)]
+    city = place("city", "US", "San Francisco", 800_000)
+    other = place("city", "AR", "San Francisco", 60_000)
+    shares = country_shares([reading(p) for p in [*villages, city, other]])
+    assert shares["US"] == pytest.approx(800_000 / 860_000)
+    assert sum(shares.values()) == pytest.approx(1.0)
+
+
+def test_city_point_capital_province_and_torn_names():
+    lisboa = place("subdivision", "PT", "Lisboa", 2_000_000, "PT-11")
+    assert city_point([reading(LISBON), reading(lisboa)]) == (reading(LISBON), False)
+    quebec_city = place("city", "CA", "Quebec", 530_000, "CA-QC")
+    quebec = place("subdivision", "CA", "Quebec", 8_500_000, "CA-QC")
+    assert city_point([reading(quebec_city), reading(quebec)]) == (None, False)
+    # A city named like a subdivision elsewhere, between half and all its weight: torn.
+    town = place("city", "XX", "Somewhere", 700_000, "XX-A")
+    province = place("subdivision", "XX", "Somewhere", 1_000_000, "XX-B")
+    assert city_point([reading(town), reading(province)]) == (None, True)
+
+
+def test_group_readings_and_region_test():
+    g = Group([mention("perth", reading(PERTH_AU), reading(PERTH_GB))])
+    assert g.countries() == {"AU", "GB"} and g.has_point() and not g.is_region()
+
+
+def test_prune_country_name_beats_small_towns_of_that_name():
+    lebanon = place("country", "LB", "Lebanon", 5_500_000)
+    lebanon_pa = place("city", "US", "Lebanon", 26_000, "US-PA")
+    [m] = prune([mention("lebanon", reading(lebanon), reading(lebanon_pa))])
+    assert [r.place.cc for r in m.readings] == ["LB"]
+
+
+def test_prune_drops_mentions_left_without_readings():
+    hamlet = place("city", "US", "One", 300, "US-KY")
+    kept = prune([mention("one", reading(hamlet, "alt")), mention("lisbon", reading(LISBON))])
+    assert [m.text for m in kept] == ["lisbon"]
+
+
+# -- the file prior -----------------------------------------------------------
+def valencia(status: Status = Status.REVIEW) -> Resolution:
+    return Resolution(
+        status,
+        Reason.AMBIGUOUS,
+        country="ES",
+        subdivision="ES-VC",
+        city="Valencia",
+        geonameid=2509954,
+        score=0.55,
+        confidence=0.5,
+        candidates=[
+            Candidate("ES", "ES-VC", "Valencia", 39.5, -0.4, 0.55),
+            Candidate("VE", "VE-G", "Valencia", 10.2, -68.0, 0.45),
+        ],
+        evidence={"ES": 0.55, "VE": 0.45},
+    )
+
+
+IDENTITY = Calibration(method="identity")
+
+
+def test_reconsider_moves_an_ambiguous_name_to_the_file_country():
+    res = valencia()
+    new = prior.reconsider(res, {"VE": 0.9, "ES": 0.1}, IDENTITY)
+    assert (new.country, new.subdivision, new.city, new.geonameid) == (
+        "VE",
+        "VE-G",
+        "Valencia",
+        None,
+    )
+    assert new.reason is Reason.FILE_PRIOR
+    assert new.status is Status.REVIEW  # status is left to settle()
+    weighted = {"ES": 0.55 * 0.12**0.3, "VE": 0.45 * 0.92**0.3}
+    p_new = weighted["VE"] / sum(weighted.values())
+    # The score scales by the new country's share over the old country's (0.55).
+    assert new.score == pytest.approx(0.55 * p_new / 0.55)
+    assert new.confidence == pytest.approx(round(new.score, 4))
+    assert res.country == "ES"  # the original answer is not changed
+
+
+def test_reconsider_keeps_an_answer_the_prior_does_not_strengthen():
+    res = valencia()
+    assert prior.reconsider(res, {"VE": 1.0}, IDENTITY).country == "VE"
+    strong_es = {"ES": 0.55, "VE": 0.45}
+    same = prior.reconsider(
+        Resolution(Status.MATCHED, Reason.AMBIGUOUS, country="VE", evidence=strong_es),
+        {"VE": 0.01, "ES": 0.99},
+        IDENTITY,
+    )
+    assert same.country == "ES"
+    unchanged = Resolution(Status.MATCHED, Reason.AMBIGUOUS, country="ES", evidence=strong_es)
+    # The prior leans a little to Venezuela: Spain stays on top, less sure: kept as is.
+    assert prior.reconsider(unchanged, {"ES": 0.45, "VE": 0.55}, IDENTITY) is unchanged
+
+
+def confident(cc: str) -> Resolution:
+    return Resolution(Status.MATCHED, Reason.CITY, country=cc, confidence=0.95, evidence={cc: 1.0})
+
+
+def test_file_prior_is_laplace_smoothed_and_needs_enough_rows():
+    results = {"a": confident("ES"), "b": confident("VE"), "c": valencia()}
+    counts = {"a": 60, "b": 40, "c": 5}
+    assert prior.file_prior(results, counts) == {"ES": 61 / 102, "VE": 41 / 102}
+    assert prior.file_prior(results, {"a": 30, "b": 10, "c": 5}) == {}
+    # Judged at a stricter threshold, 0.95 is not matched: no prior.
+    assert prior.file_prior(results, counts, accept=0.99) == {}
+
+
+def test_rerank_changes_eligible_answers_in_place_without_setting_status():
+    results = {"caracas": confident("VE"), "valencia": valencia(Status.MATCHED)}
+    changed = prior.rerank(results, {"caracas": 100, "valencia": 3}, IDENTITY)
+    assert list(changed) == ["valencia"]
+    assert results["valencia"] is changed["valencia"]
+    assert results["valencia"].country == "VE"
+    assert results["valencia"].status is Status.MATCHED
+    assert not prior.rerank(results, {"caracas": 10, "valencia": 3}, IDENTITY)
