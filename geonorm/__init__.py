@@ -16,13 +16,13 @@ from .resolve.index import PlaceIndex, build_index, load_index
 from .resolve.normalize import Query, normalize
 from .resolve.resolution import Candidate, Reason, Resolution, Status
 from .resolve.resolver import DEFAULT_ACCEPT, Resolver
+from .version import __version__
 
 if TYPE_CHECKING:
     from .batch.cache import Cache
     from .batch.clean import CleanSummary, clean_file, resolve_series
     from .batch.options import CleanOptions, RemoteOptions
 
-__version__ = "0.1.0"
 
 __all__ = [
     "DEFAULT_ACCEPT",

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import csv
 import json
+from pathlib import Path
 
 from typer.testing import CliRunner
 
@@ -203,7 +204,29 @@ def test_gazetteer_info():
     assert int(meta["places_city"]) > 200_000 and meta["index_version"] == str(INDEX_VERSION)
 
 
-def test_every_command_has_help():
-    for args in (["lookup"], ["clean"], ["demo"], ["gazetteer", "build"], ["gazetteer", "info"]):
-        r = runner.invoke(app, [*args, "--help"])
-        assert r.exit_code == 0 and len(r.stdout) > 100
+def _leaf_commands():
+    """Every command path of the CLI, walked from typer's click group."""
+    import typer.main
+
+    def walk(cmd, path):
+        if hasattr(cmd, "commands"):
+            for name, sub in cmd.commands.items():
+                yield from walk(sub, [*path, name])
+        else:
+            yield path, cmd
+
+    return list(walk(typer.main.get_command(app), []))
+
+
+def test_every_command_has_help_and_docs():
+    commands = _leaf_commands()
+    assert len(commands) >= 12
+    readme = (Path(__file__).parents[1] / "README.md").read_text(encoding="utf-8")
+    for path, cmd in commands:
+        r = runner.invoke(app, [*path, "--help"])
+        assert r.exit_code == 0, path
+        assert cmd.help and len(cmd.help.strip()) > 20, f"{' '.join(path)} has no help text"
+        for param in cmd.params:
+            if param.name != "help" and getattr(param, "param_type_name", "") == "option":
+                assert param.help, f"{' '.join(path)} {param.opts[0]} has no help"
+        assert f"geonorm {' '.join(path)}" in readme, f"README does not show {' '.join(path)}"

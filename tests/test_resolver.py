@@ -174,7 +174,16 @@ def test_resolver_never_raises_and_is_deterministic(resolver, text):
     first = resolver.resolve(text)
     again = resolver.resolve(text)
     assert first.to_dict() == again.to_dict()
-    assert first.status in Status
+    # The status agrees with the answer's fields under the resolver's threshold.
+    assert 0.0 <= first.confidence <= 1.0
+    if first.status is Status.MATCHED:
+        assert first.country and first.confidence >= resolver.accept
+    elif first.status is Status.REVIEW:
+        assert first.reason is Reason.SEVERAL_COUNTRIES or (
+            first.country and first.confidence < resolver.accept
+        )
+    else:
+        assert not first.country
 
 
 @settings(

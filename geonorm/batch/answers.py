@@ -24,7 +24,7 @@ from pathlib import Path
 from typing import Any
 
 from ..progress import Progress, no_progress, start
-from ..resolve import prior
+from ..resolve.prior import rerank
 from ..resolve.resolution import Reason, Resolution, Status, settle
 from ..resolve.resolver import Resolver
 from .cache import Cache
@@ -101,7 +101,7 @@ def resolve_keys(
         (engine or LocalEngine()).resolve(resolver, misses, take)
     results = {**found, **fresh}
     decided = _apply_decisions(results, cache)
-    prior.rerank(results, counts, resolver.calibration, accept)
+    rerank(results, counts, resolver.calibration, accept)
     answers = Answers(results, len(found), len(fresh), decided)
     if remote is not None:
         answers.remote = _remote_stage(remote, answers, counts, cache, resolver, accept)

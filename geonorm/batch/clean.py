@@ -24,6 +24,7 @@ from ..errors import InputError
 from ..progress import Progress, no_progress, note
 from ..resolve.resolution import Status
 from ..resolve.resolver import Resolver
+from ..version import __version__
 from .answers import Answers, count_keys, resolve_keys
 from .cache import Cache
 from .engines import Engine, LocalEngine
@@ -193,8 +194,6 @@ def _take_counts(summary: CleanSummary, answers: Answers, distinct: int) -> None
 
 
 def _versions(resolver: Resolver) -> dict[str, str]:
-    from .. import __version__
-
     meta = resolver.index.meta
     return {
         "geonorm": __version__,
