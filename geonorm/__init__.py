@@ -20,7 +20,7 @@ from .version import __version__
 
 if TYPE_CHECKING:
     from .batch.cache import Cache
-    from .batch.clean import CleanSummary, clean_file, resolve_series
+    from .batch.clean import CleanSummary, resolve_series
     from .batch.options import CleanOptions, RemoteOptions
 
 
@@ -55,12 +55,21 @@ __all__ = [
 # which a single lookup does not need.
 _LAZY = {
     "CleanSummary": "batch.clean",
-    "clean_file": "batch.clean",
     "resolve_series": "batch.clean",
     "Cache": "batch.cache",
     "CleanOptions": "batch.options",
     "RemoteOptions": "batch.options",
 }
+
+
+def clean_file(*args: Any, **kwargs: Any) -> CleanSummary:
+    """Clean a file (``geonorm.batch.clean.clean_file``), drawing an HTML run report
+    with ``geonorm.figures.report`` when ``report`` ends in .html."""
+    from .batch.clean import clean_file as clean
+    from .figures.report import report_html
+
+    kwargs.setdefault("report_page", report_html)
+    return clean(*args, **kwargs)
 
 
 def __getattr__(name: str) -> Any:

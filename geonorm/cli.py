@@ -14,6 +14,7 @@ from typing import Annotated, Any, TypeVar
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 from rich.table import Table
 
 from .errors import GeonormError
@@ -46,12 +47,17 @@ CacheOpt = Annotated[
         help="SQLite cache file (default: in the user data folder).",
     ),
 ]
-QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="No progress messages.")]
+QuietOpt = Annotated[
+    bool,
+    typer.Option("--quiet", "-q", help="No progress messages or summary; errors still show."),
+]
 
 
 class _Renderer:
     """Renders the library's progress events: dim notes and a rich progress bar on a
-    terminal; only the first-use notice otherwise; nothing with ``--quiet``."""
+    terminal; only the first-use notice otherwise; nothing with ``--quiet``. Errors never
+    pass through here: ``handle_errors`` prints them whatever ``--quiet`` says, and lets
+    unexpected exceptions through with their traceback."""
 
     def __init__(self, quiet: bool) -> None:
         self.quiet = quiet
@@ -65,9 +71,9 @@ class _Renderer:
             return
         if event.kind == "note":
             if self.tty:
-                err.print(f"[dim]{event.text}[/dim]")
+                err.print(f"[dim]{shown(event.text)}[/dim]")
             elif "first use" in event.text:
-                err.print(event.text, markup=False)
+                err.print(visible(event.text), markup=False)
         elif self.tty and event.kind == "start":
             self._start(event)
         elif self.bar is not None and event.kind == "advance":
@@ -98,7 +104,7 @@ class _Renderer:
             transient=True,
         )
         self.bar.start()
-        self.task = self.bar.add_task(event.text, total=event.total, rate="")
+        self.task = self.bar.add_task(shown(event.text), total=event.total, rate="")
         self.started = time.perf_counter()
 
     def close(self) -> None:
@@ -119,6 +125,44 @@ def as_flags(text: str) -> str:
     return _FIELD.sub(lambda m: "--" + m.group(1).replace("_", "-"), text)
 
 
+# Characters that must not reach a terminal as they are: C0 and C1 controls (ESC starts
+# escape sequences), DEL, the line and paragraph separators, and the bidirectional
+# formatting characters of Unicode TR9, which can reorder or hide text.
+_UNSAFE = re.compile("[\x00-\x1f\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+_SHORT_ESCAPES = {"\t": "\\t", "\n": "\\n", "\r": "\\r"}
+# The same, less the C0 controls, which JSON escapes itself (a newline there is layout).
+_UNSAFE_IN_JSON = re.compile("[\x7f-\x9f\u061c\u200e\u200f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
+
+
+def _escape_char(m: re.Match[str]) -> str:
+    ch = m.group(0)
+    code = ord(ch)
+    return _SHORT_ESCAPES.get(ch) or (f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}")
+
+
+def visible(text: object) -> str:
+    """User text made harmless for a terminal: control characters as visible escapes."""
+    return _UNSAFE.sub(_escape_char, str(text))
+
+
+def shown(text: object) -> str:
+    """User text for rich output: visible escapes, and rich markup escaped (``[/x]`` stays)."""
+    return escape(visible(text))
+
+
+def _print_json(payload: Any) -> None:
+    """JSON on stdout; characters unsafe for a terminal are written as JSON escapes."""
+    from rich.highlighter import JSONHighlighter
+    from rich.text import Text
+
+    text = _UNSAFE_IN_JSON.sub(
+        lambda m: f"\\u{ord(m.group(0)):04x}", json.dumps(payload, ensure_ascii=False, indent=2)
+    )
+    rendered = JSONHighlighter()(Text(text))
+    rendered.no_wrap, rendered.overflow = True, None
+    out.print(rendered, soft_wrap=True)
+
+
 F = TypeVar("F", bound=Callable[..., Any])
 
 
@@ -130,9 +174,9 @@ def handle_errors(fn: F) -> F:
         try:
             return fn(*args, **kwargs)
         except GeonormError as exc:
-            typer.echo(f"Error: {as_flags(exc.message)}", err=True)
+            typer.echo(f"Error: {visible(as_flags(exc.message))}", err=True)
             if exc.hint:
-                typer.echo(f"Hint: {as_flags(exc.hint)}", err=True)
+                typer.echo(f"Hint: {visible(as_flags(exc.hint))}", err=True)
             raise typer.Exit(1) from None
 
     return wrapper  # type: ignore[return-value]
@@ -176,7 +220,7 @@ def lookup(
             {"text": t, **{k: v for k, v in r.to_dict().items() if k not in ("evidence", "score")}}
             for t, r in results
         ]
-        out.print_json(json.dumps(payload, ensure_ascii=False))
+        _print_json(payload)
         return
     table = Table(show_lines=False)
     for col in ("text", "status", "place", "confidence", "reason", "candidates"):
@@ -185,17 +229,17 @@ def lookup(
         place = " / ".join(x for x in (r.city, r.subdivision, r.country) if x)
         cands = "; ".join(f"{c.label()} ({c.score:.2f})" for c in r.candidates[:3])
         table.add_row(
-            t,
+            shown(t),
             r.status.value,
-            place,
+            shown(place),
             f"{r.confidence:.2f}" if r.country else "",
-            r.reason_text,
-            cands,
+            shown(r.reason_text),
+            shown(cands),
         )
     out.print(table)
     if answers.decided:
         out.print(
-            f"reason 'reviewed': a person's decision stored in {cache} was used "
+            f"reason 'reviewed': a person's decision stored in {visible(cache)} was used "
             "(see geonorm review list)",
             markup=False,
         )
@@ -233,7 +277,9 @@ def clean(
     workers: Annotated[
         int | None,
         typer.Option(
-            "--workers", help="Processes resolving new strings (default: number of cores)."
+            "--workers",
+            help="Processes resolving new strings (default: number of cores); with --engine "
+            "dask and no --scheduler, the local cluster's worker processes.",
         ),
     ] = None,
     bad_lines: Annotated[
@@ -243,7 +289,12 @@ def clean(
         ),
     ] = None,
     report: Annotated[
-        Path | None, typer.Option("--report", help="Write the summary as JSON here.")
+        Path | None,
+        typer.Option(
+            "--report",
+            help="Write a run report here: a page to look at (.html) or the summary as JSON "
+            "(.json).",
+        ),
     ] = None,
     remote: Annotated[
         str | None,
@@ -270,6 +321,22 @@ def clean(
             "--dry-run", help="With --remote: show what would be sent; send and write nothing."
         ),
     ] = False,
+    engine: Annotated[
+        str,
+        typer.Option(
+            "--engine",
+            help="local: this machine; dask: a Dask cluster (INPUT may be a folder or a glob, "
+            "--out a folder of Parquet files).",
+        ),
+    ] = "local",
+    scheduler: Annotated[
+        str | None,
+        typer.Option(
+            "--scheduler",
+            help="With --engine dask: the scheduler's address, tcp://HOST:PORT (default: a "
+            "local cluster of --workers processes).",
+        ),
+    ] = None,
     quiet: QuietOpt = False,
 ) -> None:
     """Append geo columns to every row of a table, in input order."""
@@ -292,23 +359,50 @@ def clean(
         refresh=refresh,
         dry_run=dry_run,
     )
+    if engine not in ("local", "dask"):
+        raise GeonormError(f"unknown engine {engine!r}", hint="use --engine local or --engine dask")
+    if scheduler is not None and engine != "dask":
+        raise GeonormError("--scheduler only applies with --engine dask", hint="add --engine dask")
     show = _Renderer(quiet)
     with Cache(cache) as the_cache:
         try:
-            summary = clean_file(input, column, output, options, cache=the_cache, progress=show)
+            if engine == "dask":
+                from .batch.dask_engine import clean_dataset
+
+                summary = clean_dataset(
+                    input,
+                    column,
+                    output,
+                    options,
+                    cache=the_cache,
+                    scheduler=scheduler,
+                    progress=show,
+                )
+            else:
+                from .figures.report import report_html
+
+                summary = clean_file(
+                    input,
+                    column,
+                    output,
+                    options,
+                    cache=the_cache,
+                    progress=show,
+                    report_page=report_html,
+                )
         finally:
             show.close()
     if dry_run:
         r = summary.remote
         typer.echo(
-            f"would send {r['planned']:,} request(s) to {r['provider']} ({r['eligible']:,} "
-            "doubtful strings, "
+            f"would send {r['planned']:,} request(s) to {visible(r['provider'])} "
+            f"({r['eligible']:,} doubtful strings, "
             f"{r['already_answered']:,} answered before, {r['over_budget']:,} over the "
             "budget); first:",
             err=True,
         )
         for item in r["top_planned"]:
-            typer.echo(f"  {item['rows']:>7,}  {item['text']}", err=True)
+            typer.echo(f"  {item['rows']:>7,}  {visible(item['text'])}", err=True)
         return
     if not quiet:
         _print_summary(summary)
@@ -329,8 +423,8 @@ def _print_summary(summary) -> None:
     r = summary.remote
     if r:
         typer.echo(
-            f"remote {r['provider']}: {r['requests']:,} request(s) for {r['answered']:,} new "
-            "answer(s) "
+            f"remote {visible(r['provider'])}: {r['requests']:,} request(s) for "
+            f"{r['answered']:,} new answer(s) "
             f"({r['with_results']:,} with results, {r['no_result']:,} without, {r['errors']:,} "
             "errors, "
             f"{r['retries']:,} retries); {r['already_answered']:,} answered before; "
@@ -338,9 +432,9 @@ def _print_summary(summary) -> None:
             err=True,
         )
         for message in r["messages"]:
-            typer.echo(f"remote {message}", err=True)
+            typer.echo(f"remote {visible(message)}", err=True)
     if summary.output and summary.output != "-":
-        typer.echo(f"wrote {summary.output}", err=True)
+        typer.echo(f"wrote {visible(summary.output)}", err=True)
 
 
 @app.command()
@@ -364,10 +458,11 @@ def demo(
     table.add_column("country")
     table.add_column("rows", justify="right")
     for cc, n in result["top_countries"]:
-        table.add_row(cc, f"{n:,}")
+        table.add_row(shown(cc), f"{n:,}")
     out.print(table)
     for label, path in result["files"].items():
-        out.print(f"{label}: {path}", markup=False)
+        out.print(visible(f"{label}: {path}"), markup=False, soft_wrap=True)
+    out.print(f"Open the run report in a browser: {result['report']}", markup=False, soft_wrap=True)
 
 
 review_app = typer.Typer(
@@ -410,9 +505,9 @@ def review_export(
         cleaned, out, column=column, below=below, top=top, prefix=prefix, cache=Cache(cache)
     )
     typer.echo(
-        f"wrote {n:,} line(s) to {out}; fill in decision_country (ISO code or not_a_place), "
-        "optionally decision_subdivision, decision_city and decision_note, then run: "
-        f"geonorm review apply {out}",
+        f"wrote {n:,} line(s) to {visible(out)}; fill in decision_country (ISO code or "
+        "not_a_place), optionally decision_subdivision, decision_city and decision_note, then "
+        f"run: geonorm review apply {visible(out)}",
         err=True,
     )
 
@@ -432,7 +527,7 @@ def review_apply(
 
     rep = apply_decisions(queue, cache=Cache(cache), dry_run=dry_run)
     for problem in rep.problems:
-        typer.echo(f"{queue}: {problem}", err=True)
+        typer.echo(visible(f"{queue}: {problem}"), err=True)
     verb = "would store" if dry_run else "stored"
     typer.echo(
         f"{verb} {rep.stored} decision(s) ({rep.new} new, {rep.changed} changed); {rep.unchanged} "
@@ -458,7 +553,7 @@ def review_list(
 
     decisions = list(Cache(cache).overrides().values())
     if as_json:
-        out.print_json(json.dumps(decisions, ensure_ascii=False))
+        _print_json(decisions)
         return
     table = Table()
     for col in ("text", "decision", "note", "decided_at"):
@@ -469,7 +564,7 @@ def review_list(
             if d["not_a_place"]
             else " / ".join(x for x in (d["city"], d["subdivision"], d["country"]) if x)
         )
-        table.add_row(d["text"], what, d["note"] or "", d["decided_at"])
+        table.add_row(shown(d["text"]), shown(what), shown(d["note"] or ""), shown(d["decided_at"]))
     out.print(table)
 
 
@@ -486,7 +581,7 @@ def review_undo(
     from .review.queue import undo
 
     undo(text, cache=Cache(cache))
-    typer.echo(f"removed the decision for {text!r}", err=True)
+    typer.echo(visible(f"removed the decision for {text!r}"), err=True)
 
 
 @app.command()
@@ -566,7 +661,7 @@ def score(
         for col in ("truth", "given", "rows"):
             t.add_column(col)
         for c in rep.confusions:
-            t.add_row(c["truth"], c["given"], str(c["rows"]))
+            t.add_row(shown(c["truth"]), shown(c["given"]), str(c["rows"]))
         out.print(t)
     if rep.threshold_for_target is not None:
         out.print(
@@ -689,11 +784,11 @@ def gazetteer_info(
     idx = PlaceIndex(p)
     meta = {"path": str(p), "size_mb": round(p.stat().st_size / 1e6, 1), **idx.meta}
     if as_json:
-        out.print_json(json.dumps(meta, ensure_ascii=False))
+        _print_json(meta)
         return
     table = Table(show_header=False)
     for k, v in meta.items():
-        table.add_row(k, str(v))
+        table.add_row(shown(k), shown(v))
     out.print(table)
 
 

@@ -1,6 +1,7 @@
 """The demo: the whole path on the invented member list of a backyard weather-station network.
 
-clean → review queue → per-country tally (and by station kind) → map.
+clean (with its run report page) → review queue → per-country tally (and by
+station kind) → map.
 """
 
 from __future__ import annotations
@@ -13,6 +14,7 @@ from .batch.cache import Cache
 from .batch.clean import clean_file
 from .errors import InputError
 from .figures.mapping import write_map
+from .figures.report import report_html
 from .figures.tally import tally_file, write_tally
 from .progress import Progress, no_progress
 from .review.queue import export_queue
@@ -38,8 +40,17 @@ def run_demo(out_dir: Path, progress: Progress = no_progress) -> dict[str, Any]:
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     cleaned = out_dir / "members_clean.csv"
+    report = out_dir / "run_report.html"
     with Cache(out_dir / "cache.sqlite") as cache:
-        summary = clean_file(demo_file(), "location", cleaned, cache=cache, progress=progress)
+        summary = clean_file(
+            demo_file(),
+            "location",
+            cleaned,
+            cache=cache,
+            progress=progress,
+            report=report,
+            report_page=report_html,
+        )
         queue = out_dir / "review_queue.csv"
         queued = export_queue(cleaned, queue, column="location", top=200, cache=cache)
     countries = tally_file(cleaned)
@@ -66,8 +77,10 @@ def run_demo(out_dir: Path, progress: Progress = no_progress) -> dict[str, Any]:
         "top_countries": top,
         "queued": queued,
         "tally": countries,
+        "report": report,
         "files": {
             "cleaned file": cleaned,
+            "run report (HTML)": report,
             "review queue (top 200)": queue,
             "per-country figures": per_country,
             "per country and station kind": per_kind,

@@ -8,6 +8,8 @@ import os
 import signal
 import subprocess
 import sys
+import tempfile
+from pathlib import Path
 
 import polars as pl
 import pytest
@@ -296,3 +298,480 @@ def test_kill_and_resume_gives_identical_output(tmp_path):
     assert committed >= 2000 and not out.exists()
     subprocess.run([*cmd, "--out", str(out), "--cache", str(cache)], check=True)
     assert out.read_bytes() == reference.read_bytes()
+
+
+# --- odd files and careless paths --------------------------------------------------------
+
+
+def _read(path):
+    """An output table, every column as written (CSV as text)."""
+    if path.suffix == ".parquet":
+        return pl.read_parquet(path)
+    if path.suffix == ".jsonl":
+        return pl.read_ndjson(path)
+    return pl.read_csv(path, infer_schema=False)
+
+
+def _partials(folder):
+    return sorted(p.name for p in folder.iterdir() if "geonorm" in p.name and p.is_file())
+
+
+@pytest.mark.parametrize(
+    "src_name,out_name",
+    [
+        ("in.csv", "out.csv"),
+        ("in.parquet", "out.parquet"),
+        ("in.jsonl", "out.csv"),
+        ("in.jsonl", "out.parquet"),
+    ],
+)
+def test_nul_cell_and_missing_value_stay_two_rows(tmp_path, src_name, out_name):
+    src, out = tmp_path / src_name, tmp_path / out_name
+    if src.suffix == ".csv":
+        src.write_bytes(b"id,loc\n1,\x00\n2,\n")
+    elif src.suffix == ".parquet":
+        pl.DataFrame({"id": [1, 2], "loc": ["\x00", None]}).write_parquet(src)
+    else:
+        src.write_text('{"id": 1, "loc": "\\u0000"}\n{"id": 2, "loc": null}\n', encoding="utf-8")
+    r = _clean(tmp_path, src, out)
+    assert r.exit_code == 0, r.output
+    df = _read(out)
+    assert df.height == 2 and [str(v) for v in df["id"]] == ["1", "2"]
+    assert df["geo_reason"][1] == "empty" and df["geo_reason"][0] != "empty"
+
+
+def test_row_count_invariant_stops_and_replaces_nothing(tmp_path, monkeypatch):
+    from geonorm.batch import formats
+
+    real = formats._mapping_frame
+    # A join key that is not unique would repeat rows; simulate it.
+    monkeypatch.setattr(formats, "_mapping_frame", lambda *a, **k: pl.concat([real(*a, **k)] * 2))
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    src.write_text("id,loc\n1,Oslo\n2,Lyon\n", encoding="utf-8")
+    out.write_text("earlier output\n", encoding="utf-8")
+    r = _clean(tmp_path, src, out)
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: 4 rows were written for 2 rows read: stopped, {out} was not written\n"
+        "Hint: nothing was replaced; this is a fault in geonorm, please report it with the "
+        "command and the first lines of the file\n"
+    )
+    assert out.read_text(encoding="utf-8") == "earlier output\n"
+    assert _partials(tmp_path) == []
+
+
+def _ragged(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc\n1,Oslo\n2,Lyon,extra\n", encoding="utf-8")
+    return src
+
+
+@pytest.mark.parametrize(
+    "flag,message",
+    [
+        ("--out", "the output {p} is the input file"),
+        ("--bad-lines", "the --bad-lines file {p} is the input file"),
+        ("--report", "the --report file {p} is the input file"),
+    ],
+    ids=["out", "bad-lines", "report"],
+)
+def test_no_output_may_be_the_input(tmp_path, monkeypatch, flag, message):
+    import geonorm.batch.clean as clean_module
+
+    def no_work(*a, **k):
+        raise AssertionError("the paths must be checked before any resolving work")
+
+    monkeypatch.setattr(clean_module, "resolve_keys", no_work)
+    src = _ragged(tmp_path)
+    before = src.read_bytes()
+    args = ["--bad-lines", str(tmp_path / "bad.csv")] if flag != "--bad-lines" else []
+    out = src if flag == "--out" else tmp_path / "out.csv"
+    extra = [flag, str(src)] if flag != "--out" else []
+    r = _clean(tmp_path, src, out, *args, *extra)
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: {message.format(p=src)}\n"
+        "Hint: write to another file: geonorm never replaces its input\n"
+    )
+    assert src.read_bytes() == before
+
+
+def test_links_to_the_input_and_shared_outputs_are_refused(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc\n1,Oslo\n", encoding="utf-8")
+    (tmp_path / "sub").mkdir()
+    link, hard = tmp_path / "sub" / "link.csv", tmp_path / "hard.csv"
+    link.symlink_to(src)
+    os.link(src, hard)
+    for out in (link, hard, tmp_path / "sub" / ".." / "in.csv"):
+        r = _clean(tmp_path, src, out)
+        assert r.exit_code == 1
+        assert r.stderr.startswith(f"Error: the output {out} is the input file\n")
+    out = tmp_path / "out.csv"
+    r = _clean(tmp_path, src, out, "--report", str(out))
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: the --report file {out} is also the output\n"
+        "Hint: give each file of the run its own name\n"
+    )
+    assert src.read_text(encoding="utf-8") == "id,loc\n1,Oslo\n" and not out.exists()
+    cmd = [sys.executable, "-m", "geonorm.cli", "clean", "-", "-c", "loc", "-o", str(hard)]
+    with open(src, "rb") as stdin:  # standard input redirected from the file itself
+        proc = subprocess.run(cmd, stdin=stdin, capture_output=True, text=True)
+    assert proc.returncode == 1
+    assert proc.stderr.startswith(f"Error: the output {hard} is the input file\n")
+    assert src.read_text(encoding="utf-8") == "id,loc\n1,Oslo\n"
+
+
+def test_special_files_are_never_replaced(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc\n1,Oslo\n", encoding="utf-8")
+    fifo = tmp_path / "pipe.csv"
+    os.mkfifo(fifo)
+    r = _clean(tmp_path, src, fifo)
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: the output {fifo} is a named pipe, not a regular file; geonorm only writes "
+        "regular files\nHint: name a regular file; to throw the output away, write to standard "
+        "output (-) and redirect that to /dev/null\n"
+    )
+    assert fifo.is_fifo()
+    r = _clean(tmp_path, src, tmp_path, "--format", "csv")
+    assert r.exit_code == 1
+    assert r.stderr == f"Error: the output {tmp_path} is a folder\nHint: name a file inside it\n"
+
+
+@pytest.mark.parametrize(
+    "flag,label",
+    [
+        ("--out", "the output"),
+        ("--bad-lines", "the --bad-lines file"),
+        ("--report", "the --report file"),
+    ],
+)
+def test_missing_folder_is_an_error_message(tmp_path, flag, label):
+    src = _ragged(tmp_path)
+    target = tmp_path / "nowhere" / "x.csv"
+    paths = {"--out": tmp_path / "out.csv", "--bad-lines": tmp_path / "bad.csv"}
+    paths[flag] = target
+    extra = ["--bad-lines", str(paths["--bad-lines"])]
+    if flag == "--report":
+        extra += ["--report", str(target)]
+    r = _clean(tmp_path, src, paths["--out"], *extra)
+    assert r.exit_code == 1, r.output
+    assert r.stderr == (
+        f"Error: cannot write {label} {target}: the folder {target.parent} does not exist\n"
+        "Hint: create the folder first, or choose another path\n"
+    )
+    assert not (tmp_path / "out.csv").exists()
+
+
+def _unwritable_folder(tmp_path):
+    """A folder this process cannot create files in (root ignores permission bits)."""
+    if os.geteuid() != 0:
+        folder = tmp_path / "read-only"
+        folder.mkdir()
+        folder.chmod(0o555)
+        return folder
+    for folder in (Path("/sys"),):
+        probe = folder / ".geonorm-test-probe"
+        try:
+            os.close(os.open(probe, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+        except PermissionError:
+            return folder
+        except OSError:
+            continue
+        probe.unlink()
+    pytest.skip("no folder here refuses writes to this user")
+
+
+def test_unwritable_folder_is_an_error_message(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc\n1,Oslo\n", encoding="utf-8")
+    out = _unwritable_folder(tmp_path) / "out.csv"
+    r = _clean(tmp_path, src, out)
+    assert r.exit_code == 1, r.output
+    assert r.stderr.startswith(
+        f"Error: cannot write the output {out}: the folder {out.parent} is not writable ("
+    )
+    assert r.stderr.endswith("\nHint: choose a folder you can write to\n")
+
+
+@pytest.mark.parametrize("column", ["loc", "note"])
+def test_jsonl_unpaired_surrogate_is_an_error_message(tmp_path, column):
+    src = tmp_path / "in.jsonl"
+    record = {"loc": "Oslo", "note": "fine"}
+    lines = [
+        json.dumps(record),
+        json.dumps(record).replace("fine" if column == "note" else "Oslo", "\\ud800"),
+    ]
+    src.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    for out in ("out.csv", "out.jsonl", "out.parquet"):
+        r = _clean(tmp_path, src, tmp_path / out)
+        assert r.exit_code == 1, r.output
+        assert r.stderr == (
+            f"Error: {src} line 2 holds an unpaired surrogate escape (\\ud800 to \\udfff) in the "
+            f"column '{column}': it stands for no character\n"
+            "Hint: fix that value: such escapes are only valid in pairs that make one character\n"
+        )
+
+
+def test_old_mac_line_endings_are_read(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_bytes(b'id,loc,note\r1,Oslo,"two\rlines"\r2,Lyon,"say ""hi"""\r3,,\r')
+    out = tmp_path / "out.csv"
+    r = _clean(tmp_path, src, out)
+    assert r.exit_code == 0, r.output
+    assert r.stderr.startswith("3 rows, ")
+    with open(out, encoding="utf-8", newline="") as fh:
+        rows = list(csv.reader(fh))
+    assert [row[:4] for row in rows[1:]] == [
+        ["1", "Oslo", "two\rlines", "NO"],
+        ["2", "Lyon", 'say "hi"', "FR"],
+        ["3", "", "", ""],
+    ]
+    jsonl = tmp_path / "in.jsonl"
+    jsonl.write_bytes(b'{"loc": "Oslo"}\r{"loc": "Lyon"}\r')
+    r = _clean(tmp_path, jsonl, tmp_path / "out.parquet")
+    assert r.exit_code == 0, r.output
+    assert _read(tmp_path / "out.parquet")["geo_country"].to_list() == ["NO", "FR"]
+
+
+def test_jsonl_nested_location_counts_as_empty(tmp_path):
+    from geonorm import clean_file
+
+    src = tmp_path / "in.jsonl"
+    src.write_text(
+        '{"id": 1, "loc": {"city": "Oslo", "cc": "NO"}}\n'
+        '{"id": 2, "loc": {"city": "Lyon"}}\n'
+        '{"id": 3, "loc": ["Rome"]}\n',
+        encoding="utf-8",
+    )
+    events = []
+    clean_file(
+        src,
+        "loc",
+        tmp_path / "out.parquet",
+        cache=tmp_path / "c.sqlite",
+        workers=1,
+        progress=events.append,
+    )
+    out = _read(tmp_path / "out.parquet")
+    assert out["id"].to_list() == [1, 2, 3]
+    assert out["geo_status"].to_list() == ["not_a_place"] * 3
+    assert out["geo_reason"].to_list() == ["empty"] * 3
+    assert any("3 row(s) hold a list or an object in the column 'loc'" in e.text for e in events)
+
+
+def test_jsonl_nested_values_to_csv_keep_their_json_text(tmp_path):
+    src = tmp_path / "in.jsonl"
+    src.write_text(
+        '{"id": 1, "loc": "Oslo", "meta": {"a": [1, 2.50e1]}, "n": 1e5, "ok": true}\n'
+        '{"id": 2, "loc": "Lyon", "meta": {"b": null}}\n'
+        '{"id": 3, "loc": [1, "a"], "meta": [{"c": "d"}]}\n'
+        '{"id": 4, "loc": 1.50, "meta": "x"}\n',
+        encoding="utf-8",
+    )
+    for _ in range(3):  # each run gives the same answer
+        r = _clean(tmp_path, src, tmp_path / "out.csv")
+        assert r.exit_code == 0, r.output
+        with open(tmp_path / "out.csv", encoding="utf-8", newline="") as fh:
+            rows = list(csv.DictReader(fh))
+        assert [row["meta"] for row in rows] == [
+            '{"a":[1,2.50e1]}',
+            '{"b":null}',
+            '[{"c":"d"}]',
+            "x",
+        ]
+        assert rows[0]["n"] == "1e5" and rows[0]["ok"] == "true" and rows[1]["n"] == ""
+        assert rows[2]["loc"] == '[1,"a"]' and rows[3]["loc"] == "1.50"
+        assert [row["geo_country"] for row in rows[:2]] == ["NO", "FR"]
+    r = _clean(tmp_path, src, tmp_path / "out.parquet")
+    assert r.exit_code == 0, r.output
+    assert _read(tmp_path / "out.parquet")["geo_country"].to_list() == ["NO", "FR", "", ""]
+
+
+def test_killed_write_leaves_a_named_partial_file_that_the_next_run_removes(tmp_path):
+    import time
+
+    src = tmp_path / "in.jsonl"
+    with open(src, "w", encoding="utf-8") as fh:
+        for i in range(150_000):
+            fh.write(json.dumps({"id": i, "loc": ("Oslo", "Lyon", "Rome")[i % 3]}) + "\n")
+    out = tmp_path / "out.jsonl"
+    cmd = [
+        sys.executable,
+        "-m",
+        "geonorm.cli",
+        "clean",
+        str(src),
+        "--column",
+        "loc",
+        "--out",
+        str(out),
+        "--cache",
+        str(tmp_path / "c.sqlite"),
+        "--workers",
+        "1",
+        "--quiet",
+    ]
+    proc = subprocess.Popen(cmd)
+    partial = tmp_path / f".out.jsonl.geonorm-partial-{proc.pid}"
+    deadline = time.time() + 300
+    while proc.poll() is None and time.time() < deadline:
+        if partial.exists() and partial.stat().st_size > 0:
+            break
+        time.sleep(0.01)
+    assert proc.poll() is None, "the run finished before it could be interrupted"
+    os.kill(proc.pid, signal.SIGKILL)
+    proc.wait()
+    assert partial.exists() and not out.exists()
+    assert stat_mode(partial) == 0o600  # private while it is written
+    subprocess.run(cmd, check=True)
+    assert _partials(tmp_path) == []
+    with open(out, encoding="utf-8") as fh:
+        assert sum(1 for _ in fh) == 150_000
+
+
+def stat_mode(path):
+    return path.stat().st_mode & 0o777
+
+
+def test_stale_partial_files_of_ended_runs_go_and_live_ones_stay(tmp_path, monkeypatch):
+    ended = subprocess.Popen([sys.executable, "-c", "pass"])
+    ended.wait()
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    src.write_text("id,loc\n1,Oslo\n", encoding="utf-8")
+    stale = tmp_path / f".out.csv.geonorm-partial-{ended.pid}"
+    live = tmp_path / f".out.csv.geonorm-partial-{os.getppid()}"
+    other = tmp_path / f".other.csv.geonorm-partial-{ended.pid}"
+    for p in (stale, live, other):
+        p.write_text("personal data", encoding="utf-8")
+    work_folder = tmp_path / "tmp"
+    work_folder.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(work_folder))
+    stale_work = work_folder / f"geonorm-work-{ended.pid}-x1.in"
+    stale_work.write_text("personal data", encoding="utf-8")
+    r = _clean(tmp_path, src, out)
+    assert r.exit_code == 0, r.output
+    assert not stale.exists() and live.exists() and other.exists()
+    assert list(work_folder.iterdir()) == []
+
+
+def test_new_output_keeps_the_input_mode_and_a_replaced_one_its_own(tmp_path):
+    src, out = tmp_path / "in.csv", tmp_path / "out.csv"
+    src.write_text("id,loc\n1,Oslo\n", encoding="utf-8")
+    src.chmod(0o640)
+    assert _clean(tmp_path, src, out).exit_code == 0
+    assert stat_mode(out) == 0o640
+    out.chmod(0o604)
+    assert _clean(tmp_path, src, out).exit_code == 0
+    assert stat_mode(out) == 0o604
+
+
+def test_random_bytes_are_called_binary(tmp_path):
+    import random
+
+    src = tmp_path / "in.csv"
+    src.write_bytes(random.Random(7).randbytes(3000))
+    r = _clean(tmp_path, src, tmp_path / "out.csv")
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: {src} looks like a binary file, not text\n"
+        "Hint: pass a CSV, TSV, Parquet or JSON Lines file, or give its --encoding\n"
+    )
+
+
+def test_messages_never_echo_control_characters(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("id,lo\x1b[2Jc\n1,Oslo\n", encoding="utf-8")
+    r = _clean(tmp_path, src, tmp_path / "out.csv")
+    assert r.exit_code == 1
+    assert "\x1b" not in r.stderr
+    assert r.stderr.startswith(
+        f"Error: column 'loc' is not in {src}; its columns are: id, lo\\x1b[2Jc\n"
+    )
+
+
+def test_parquet_lists_and_structs(tmp_path):
+    src = tmp_path / "in.parquet"
+    pl.DataFrame({"id": [1], "loc": ["Oslo"], "tags": [[1, 2]]}).write_parquet(src)
+    r = _clean(tmp_path, src, tmp_path / "out.csv")
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: {src} has columns of lists, structs or binary data ('tags'), which CSV cannot "
+        "hold\nHint: write Parquet or JSON Lines instead (--format parquet)\n"
+    )
+    assert _clean(tmp_path, src, tmp_path / "out.parquet").exit_code == 0
+    pl.DataFrame({"id": [1], "loc": [["Oslo"]]}).write_parquet(src)
+    r = _clean(tmp_path, src, tmp_path / "out.parquet")
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: the column 'loc' of {src} holds lists, not text\n"
+        "Hint: pass the column that holds the location text with --column\n"
+    )
+
+
+@pytest.mark.parametrize(
+    "body,what",
+    [
+        ('1,Oslo\n2,"Lyon\n3,Rome\n', "opens a quote that is never closed"),
+        ('1,Oslo\n2,Ly"on\n3,Rome\n', "has a quote inside a field that does not start with one"),
+        ('1,"Oslo\nwest"\n2,"Ly"on\n', "has text after the closing quote of a field"),
+    ],
+    ids=["never-closed", "inside-a-field", "after-closing"],
+)
+def test_misplaced_quotes_name_the_line(tmp_path, body, what):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc\n" + body, encoding="utf-8")
+    r = _clean(tmp_path, src, tmp_path / "out.csv")
+    assert r.exit_code == 1
+    line = 4 if "closing" in what else 3
+    assert r.stderr == (
+        f"Error: {src} line {line} {what}\n"
+        "Hint: put a field that holds quotes, separators or line breaks in double quotes, and "
+        'double each quote inside it (""); or check --separator\n'
+    )
+
+
+def test_duplicate_column_names_are_refused(tmp_path):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc,id,x,x\n1,Oslo,2,3,4\n", encoding="utf-8")
+    r = _clean(tmp_path, src, tmp_path / "out.csv")
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: {src} has more than one column named 'id', 'x'\n"
+        "Hint: rename the columns so that each name is used once\n"
+    )
+    jsonl = tmp_path / "in.jsonl"
+    jsonl.write_text('{"loc": "Oslo"}\n{"loc": "Oslo", "loc": "Lyon"}\n', encoding="utf-8")
+    r = _clean(tmp_path, jsonl, tmp_path / "out.csv")
+    assert r.exit_code == 1
+    assert r.stderr == (
+        f"Error: {jsonl} line 2 has more than one key named 'loc'\n"
+        "Hint: rename the keys so that each name is used once\n"
+    )
+
+
+def test_quiet_hides_progress_never_errors(tmp_path, monkeypatch):
+    src = tmp_path / "in.csv"
+    src.write_text("id,loc\n1,Oslo\n", encoding="utf-8")
+    out = tmp_path / "nowhere" / "out.csv"
+    expected = (
+        f"Error: cannot write the output {out}: the folder {out.parent} does not exist\n"
+        "Hint: create the folder first, or choose another path\n"
+    )
+    r = _clean(tmp_path, src, out, "--quiet")
+    assert r.exit_code == 1 and r.stderr == expected
+    cmd = [sys.executable, "-m", "geonorm.cli", "clean", str(src), "-c", "loc", "-o", str(out)]
+    proc = subprocess.run([*cmd, "--quiet"], capture_output=True, text=True)
+    assert proc.returncode == 1 and proc.stderr == expected and proc.stdout == ""
+
+    import geonorm.batch.clean as clean_module
+
+    def broken(*a, **k):
+        raise RuntimeError("an unexpected fault")
+
+    monkeypatch.setattr(clean_module, "clean_file", broken)
+    r = _clean(tmp_path, src, tmp_path / "out.csv", "--quiet")
+    assert isinstance(r.exception, RuntimeError)  # not swallowed, not turned into a message

@@ -6,6 +6,7 @@ Populations are round figures of the real places; only their order of size matte
 from __future__ import annotations
 
 import itertools
+from dataclasses import replace
 
 import pytest
 
@@ -15,9 +16,11 @@ from geonorm.resolve.decide import (
     Group,
     city_point,
     country_shares,
+    current_places,
     decide,
     drop_minor_places,
     group_places,
+    strength,
     weigh,
 )
 from geonorm.resolve.index import Place
@@ -116,8 +119,57 @@ def test_drop_minor_places_never_drops_every_place():
     assert len(places) == 2 and drop_minor_places(places) == places
 
 
+def test_a_place_read_from_an_ordinary_word_does_not_make_several_countries():
+    yemen_city = place("subdivision", "YE", "Amanat al Asimah", 100_000, "YE-SA")
+    ibadan = place("city", "NG", "Ibadan", 3_600_000, "NG-OY")
+    strong = mention("ibadan", reading(ibadan))
+    weak = replace(mention("city", reading(yemen_city), part=1), prior=0.1)
+    res = decide(normalize("Ibadan, the city of dreams"), [strong, weak])
+    assert (res.country, res.city) == ("NG", "Ibadan")
+    # Of comparable strength, the same two places are several countries.
+    res = decide(normalize("Ibadan, city"), [strong, replace(weak, prior=0.9)])
+    assert res.reason is Reason.SEVERAL_COUNTRIES
+
+
+def test_strength_is_the_best_prior_of_a_place_and_lowers_the_score():
+    groups, _ = group_places([replace(mention("lisbon", reading(LISBON)), prior=0.4)])
+    assert strength(weigh(groups[0], [])) == 0.4
+    sure = decide(normalize("Lisbon"), [mention("lisbon", reading(LISBON))])
+    doubtful = decide(normalize("Lisbon"), [replace(mention("lisbon", reading(LISBON)), prior=0.4)])
+    assert doubtful.score < sure.score
+
+
+def test_cue_marked_current_place_wins_and_former_alone_decides_nothing():
+    lisbon, berlin = mention("lisbon", reading(LISBON)), mention("berlin", reading(BERLIN), part=1)
+    groups, _ = group_places([lisbon, berlin])
+    places = [weigh(g, []) for g in groups]
+    kept, by_cue = current_places(places, {(1, 0, "berlin"): "current"})
+    assert by_cue and [w.best_country() for w in kept] == ["DE"]
+    assert current_places(places, {(0, 0, "lisbon"): "former"}) == (places, False)
+    res = decide(normalize("ex-Lisbon, now Berlin"), [lisbon, berlin])
+    assert (res.country, res.city, res.reason) == ("DE", "Berlin", Reason.CURRENT_PLACE)
+
+
+def test_fictional_name_wins_unless_a_confirmed_place_explains_it():
+    scotland = mention("scotland", reading(SCOTLAND), part=1)
+    res = decide(normalize("Hogwarts, Scotland"), [scotland], ["hogwarts"])
+    assert (res.status, res.reason) == (Status.NOT_A_PLACE, Reason.FICTIONAL)
+    perth = mention("perth", reading(PERTH_GB))
+    res = decide(normalize("Perth, Scotland"), [perth, scotland], ["perth"])
+    assert res.country == "GB"  # the place the name also is, confirmed by its country
+    assert decide(normalize("Narnia"), [], ["narnia"]).reason is Reason.FICTIONAL
+
+
+def test_ordinary_words_without_a_place_are_junk():
+    deszk = place("city", "HU", "Deszk", 4000, "HU-CS", fame=5)
+    weak = replace(mention("desk", reading(deszk, "alt"), start=2), prior=0.2)
+    res = decide(normalize("under my desk"), [weak])
+    assert (res.status, res.reason) == (Status.NOT_A_PLACE, Reason.JUNK)
+    assert decide(normalize("Dunmarrow"), [weak]).status is not Status.NOT_A_PLACE
+
+
 def test_unmatched_without_mentions_and_for_world_regions():
-    assert decide(normalize("xyz"), []).reason is Reason.NO_MATCH
+    assert decide(normalize("Dunmarrow"), []).reason is Reason.NO_MATCH
     asia = place("region", "", "Southeast Asia", 0)
     assert decide(normalize("Southeast Asia"), [mention("se asia", reading(asia))]).reason is (
         Reason.WORLD_REGION

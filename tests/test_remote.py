@@ -35,7 +35,7 @@ from geonorm.resolve.resolution import Candidate, Reason, Resolution, Status, se
 
 runner = CliRunner()
 # Invented place names the offline index cannot know; the fixture service knows some of them.
-UNKNOWN = {"zorbaville": 40, "quellmoor": 30, "brindleford": 20, "xantheport": 10, "vossingen": 5}
+UNKNOWN = {"zorbaville": 40, "quellmoor": 30, "brindleford": 20, "xantheport": 10, "quarnbeck": 5}
 
 
 def _table(path, counts: dict[str, int], extra: dict[str, int] | None = None):
@@ -75,11 +75,11 @@ def _rows(tmp_path):
 
 
 def test_adapter_file_errors_name_the_line(tmp_path):
-    good = adapter_file(tmp_path / "a.toml", "https://geo.example.invalid/find")
+    good = adapter_file(tmp_path / "a.toml", "https://geo.example.invalid/locate")
     text = good.read_text()
     cases = {
         "unknown": (
-            text.replace('query_param = "q"', 'query_param = "q"\nquery_parm = "x"'),
+            text.replace('query_param = "text"', 'query_param = "text"\nquery_parm = "x"'),
             "line 6: unknown key 'query_parm' in [remote]",
         ),
         "type": (
@@ -88,7 +88,7 @@ def test_adapter_file_errors_name_the_line(tmp_path):
         ),
         "missing": (text.replace('lat = "lat"\n', ""), "line 8: [remote.response] lacks 'lat'"),
         "url": (
-            text.replace("https://geo.example.invalid/find", "geo.example.invalid"),
+            text.replace("https://geo.example.invalid/locate", "geo.example.invalid"),
             "line 3: url 'geo.example.invalid' is not an http(s) URL",
         ),
         "syntax": (text.replace("per_second = 200", "per_second = = 200"), "is not valid TOML"),
@@ -99,7 +99,7 @@ def test_adapter_file_errors_name_the_line(tmp_path):
         with pytest.raises(RemoteError) as err:
             TomlAdapter(path)
         assert message in str(err.value), (name, str(err.value))
-    keyed = adapter_file(tmp_path / "k.toml", "https://geo.example.invalid/find", key=True)
+    keyed = adapter_file(tmp_path / "k.toml", "https://geo.example.invalid/locate", key=True)
     with pytest.raises(
         RemoteError, match="line 7: the environment variable TEAM_GEO_KEY is not set"
     ):
@@ -195,13 +195,13 @@ def test_bad_answers_are_rejected_one_by_one(tmp_path):
         answers={
             "zorbaville": [hit("ZZ", 45.1, 4.8)],  # not an ISO code
             "quellmoor": [
-                hit("DE", 95.0, 9.0),
-                hit("DE", 52.0, 9.0),
+                hit("DE", 95.0, 9.0, "Hannover"),
+                hit("DE", 52.37, 9.73, "Hannover"),
             ],  # first out of range, second fine
             "brindleford": [{"lat": 1.0, "lon": 2.0}],  # no country field
             "xantheport": [hit("Norway", 60.0, 10.0)],
         },  # an English country name
-        malformed={"vossingen"},
+        malformed={"quarnbeck"},
     )
     with FixtureServer(behaviour) as server:
         adapter = adapter_file(tmp_path / "a.toml", server.url)
@@ -212,7 +212,7 @@ def test_bad_answers_are_rejected_one_by_one(tmp_path):
         assert rows["Zorbaville"]["geo_status"] == "unmatched"
         assert (rows["Quellmoor"]["geo_country"], rows["Quellmoor"]["geo_lat"]) == (
             "DE",
-            "52.00000",
+            "52.37000",
         )
         assert rows["Brindleford"]["geo_status"] == "unmatched"
         assert rows["Xantheport"]["geo_country"] == "NO"
@@ -440,7 +440,7 @@ def test_retry_after_as_an_http_date(tmp_path):
     ("value", "expected"),
     [
         ("2", 2.0),
-        ("-3", 0.0),
+        ("-3", None),  # delta-seconds has no sign (RFC 9110)
         ("100000", MAX_RETRY_AFTER),
         ("soon", None),
         ("nan", None),
@@ -459,11 +459,11 @@ def test_malformed_numbers_and_deep_json_are_rejected_not_raised(tmp_path):
     behaviour = Behaviour(
         answers={
             "zorbaville": [
-                {"address": {"cc": "FR"}, "lat": huge, "lon": 4.8},
-                {"address": {"cc": "FR"}, "lat": True, "lon": 4.8},
-                {"address": {"cc": "FR"}, "lat": 45.1, "lon": 4.8, "relevance": huge},
+                {"where": {"country": "FR"}, "lat": huge, "lon": 4.8},
+                {"where": {"country": "FR"}, "lat": True, "lon": 4.8},
+                {"where": {"country": "FR"}, "lat": 45.1, "lon": 4.8, "certainty": huge},
             ],
-            "quellmoor": [hit("DE", 52.0, 9.0, relevance=float("nan"))],
+            "quellmoor": [hit("DE", 52.0, 9.0, certainty=float("nan"))],
         },
         raw={"brindleford": b"[" * 100_000 + b"]" * 100_000},
     )
@@ -504,3 +504,293 @@ def test_status_is_set_by_settle_not_by_merge(resolver):
     assert settle(new, 0.75).status is Status.MATCHED  # 0.95 × 0.85 ≥ 0.75
     assert settle(merge(nothing, found, "svc", index), 0.9).status is Status.REVIEW
     assert merge(nothing, RemoteAnswer("no_result"), "svc", index) is nothing
+
+
+# -- a faulty or hostile service ------------------------------------------
+def _cache_state(path, provider="team-geocoder", keys=tuple(UNKNOWN)):
+    """The cached answers of ``provider`` and the requests counted against it."""
+    with Cache(path) as cache:
+        return cache.remote_answers(provider, list(keys)), cache.remote_used(provider)
+
+
+def test_a_redirect_to_another_origin_is_refused_and_the_key_stays_home(tmp_path):
+    secret = "sekret-4711-do-not-store"
+    elsewhere = Behaviour(answers={"zorbaville": [hit("FR", 45.76, 4.84, "Lyon")]})
+    with FixtureServer(elsewhere) as other:  # another port: another origin
+        behaviour = Behaviour(
+            key=secret,
+            answers={"quellmoor": [hit("DE", 52.37, 9.73, "Hannover")]},
+            redirect={
+                "zorbaville": (302, f"{other.url}?text=zorbaville"),
+                "quellmoor": (307, "/moved?text=quellmoor"),  # the same origin: followed
+            },
+        )
+        with FixtureServer(behaviour) as server:
+            adapter = adapter_file(tmp_path / "a.toml", server.url, key=True)
+            src = _table(tmp_path / "in.csv", {"zorbaville": 2, "quellmoor": 1})
+            r = _clean(tmp_path, src, adapter, env={"TEAM_GEO_KEY": secret})
+            assert r.exit_code == 0, r.output
+            assert other.requests == []  # nothing reached the other origin, least of all the key
+            assert server.counts() == {"zorbaville": 1, "quellmoor": 2}  # refused, not retried
+            assert [q["path"] for q in server.requests if q["q"] == "quellmoor"] == [
+                "/locate",
+                "/moved",
+            ]
+            assert all(q["headers"].get("X-Api-Key") == secret for q in server.requests)
+            assert f"redirected to another origin ({other.origin}); not followed" in r.stderr
+    rows = {row["location"]: row for row in _rows(tmp_path)}
+    assert rows["Zorbaville"]["geo_status"] == "unmatched"  # no other origin's answer is taken
+    assert rows["Quellmoor"]["geo_country"] == "DE"
+    answers, used = _cache_state(tmp_path / "cache.sqlite")
+    assert set(answers) == {"quellmoor"} and used == 2  # the refused answer is not cached
+
+
+@pytest.mark.parametrize("part", ["head", "body"])
+def test_a_trickling_answer_ends_at_the_request_deadline(tmp_path, part):
+    # 24 bytes, one every 0.25 s: each within the 1 s read timeout, 6 s in all.
+    behaviour = Behaviour(trickle={"zorbaville": (part, 0.25, 24)})
+    with FixtureServer(behaviour) as server:
+        adapter = TomlAdapter(adapter_file(tmp_path / "a.toml", server.url, timeout=1, retries=0))
+        started = time.monotonic()
+        with Cache(tmp_path / "cache.sqlite") as cache:
+            summary = run_remote(adapter, [("zorbaville", 1)], cache)
+        elapsed = time.monotonic() - started
+    assert elapsed < 4, elapsed  # timeout_s bounds the request as a whole (6 s without)
+    assert (summary.requests, summary.errors, summary.answered) == (1, 1, 0)
+    assert _cache_state(tmp_path / "cache.sqlite") == ({}, 1)  # counted, not cached
+
+
+def test_the_remote_phase_stops_at_its_time_budget_and_the_run_finishes_offline(tmp_path):
+    from geonorm.batch.clean import clean_file
+
+    many = {f"zorb{i}ville": 20 - i for i in range(8)}
+    answers = {k: [hit("FR", 45.76, 4.84, "Lyon")] for k in many}
+    with FixtureServer(Behaviour(answers=answers, delay=0.3)) as server:
+        path = adapter_file(tmp_path / "a.toml", server.url, concurrency=1, timeout=5)
+        adapter = TomlAdapter(path, time_budget_s=1.5)  # the Python API overrides the default
+        src = _table(tmp_path / "in.csv", many)
+        with Cache(tmp_path / "cache.sqlite") as cache:
+            summary = clean_file(src, "location", tmp_path / "out.csv", cache=cache, remote=adapter)
+        sent = sum(server.counts().values())
+    remote = summary.remote
+    assert remote["answered"] < len(many) and remote["requests"] == sent >= 1
+    assert remote["messages"] == [
+        "team-geocoder: the remote phase used its time budget (1.5 s); stopped calling, the run "
+        "goes on offline",
+        f"{len(many) - sent} string(s) were not sent because the time budget ran out",
+    ]
+    assert len(_rows(tmp_path)) == sum(many.values())  # nothing lost
+    answers_cached, used = _cache_state(tmp_path / "cache.sqlite", keys=many)
+    assert len(answers_cached) == remote["answered"] and used == sent
+
+
+def test_time_budget_and_answer_cap_must_be_positive(tmp_path):
+    path = adapter_file(tmp_path / "a.toml", "https://geo.example.invalid/locate")
+    for bad in ({"time_budget_s": 0}, {"time_budget_s": float("nan")}, {"max_answer_bytes": 0}):
+        with pytest.raises(RemoteError, match="above 0"):
+            TomlAdapter(path, **bad)
+    with Cache(tmp_path / "c.sqlite") as cache, pytest.raises(RemoteError, match="above 0"):
+        run_remote(TomlAdapter(path), [("zorbaville", 1)], cache, time_budget_s=-1)
+
+
+def test_hostile_answers_do_not_stop_the_run_and_every_request_is_counted(tmp_path):
+    deep = b"[" * 200_000 + b"]" * 200_000
+    behaviour = Behaviour(
+        answers={"zorbaville": [hit("FR", 45.76, 4.84, "Lyon")], "quellmoor": []},
+        fail_first={
+            "zorbaville": [(429, {"Retry-After": "nan"})],
+            "quellmoor": [(503, {"Retry-After": "Mon, 99 Foo 20x0 25:61:00 GMT"})],
+        },
+        raw={"brindleford": deep, "xantheport": b'{"matches": ' + deep + b"}"},
+    )
+    with FixtureServer(behaviour) as server:
+        adapter = adapter_file(tmp_path / "a.toml", server.url)
+        src = _table(tmp_path / "in.csv", UNKNOWN)
+        r = _clean(tmp_path, src, adapter, "--report", tmp_path / "r.json")
+        sent = sum(server.counts().values())
+    assert r.exit_code == 0, r.output
+    assert sent == 7  # two retries after the unreadable waits, one request for each other string
+    rep = json.loads((tmp_path / "r.json").read_text())["remote"]
+    assert (rep["requests"], rep["retries"], rep["errors"]) == (7, 2, 2)
+    assert len(_rows(tmp_path)) == sum(UNKNOWN.values())
+    answers, used = _cache_state(tmp_path / "cache.sqlite")
+    assert used == 7 and answers["zorbaville"].hits[0].country == "FR"
+    assert answers["brindleford"].error == answers["xantheport"].error
+    assert answers["brindleford"] == RemoteAnswer("error", error="the response is not valid JSON")
+
+
+def test_an_adapter_tripping_over_an_answer_gives_an_error_not_a_crash(tmp_path):
+    class Tripping(TomlAdapter):
+        def parse(self, response):
+            if b"deep" in response.content:
+                raise RecursionError("maximum recursion depth exceeded")
+            return super().parse(response)
+
+    behaviour = Behaviour(
+        answers={"zorbaville": [hit("FR", 45.76, 4.84, "Lyon")]}, raw={"quellmoor": b'{"deep": 1}'}
+    )
+    with FixtureServer(behaviour) as server:
+        adapter = Tripping(adapter_file(tmp_path / "a.toml", server.url))
+        with Cache(tmp_path / "cache.sqlite") as cache:
+            summary = run_remote(adapter, [("zorbaville", 2), ("quellmoor", 1)], cache)
+        sent = sum(server.counts().values())
+    assert (sent, summary.requests, summary.results, summary.errors) == (2, 2, 1, 1)
+    answers, used = _cache_state(tmp_path / "cache.sqlite")
+    assert used == 2
+    assert answers["quellmoor"] == RemoteAnswer(
+        "error", error="the answer could not be read (RecursionError)"
+    )
+
+
+def test_requests_sent_are_counted_before_a_failure_is_raised(tmp_path):
+    class BadUrlFor(TomlAdapter):
+        def request(self, client, text):
+            if text == "quellmoor":
+                raise httpx.InvalidURL("no host")
+            return super().request(client, text)
+
+    behaviour = Behaviour(answers={"zorbaville": [hit("FR", 45.76, 4.84, "Lyon")]})
+    behaviour.slow = {"zorbaville": 0.5}  # still in flight when the other string fails
+    with FixtureServer(behaviour) as server:
+        adapter = BadUrlFor(adapter_file(tmp_path / "a.toml", server.url, concurrency=2))
+        with (
+            Cache(tmp_path / "cache.sqlite") as cache,
+            pytest.raises(RemoteError, match="cannot build a request"),
+        ):
+            run_remote(adapter, [("zorbaville", 2), ("quellmoor", 1)], cache)
+        assert server.counts() == {"zorbaville": 1}
+    answers, used = _cache_state(tmp_path / "cache.sqlite")
+    assert used == 1 and set(answers) == {"zorbaville"}  # what was sent stays counted
+
+
+def test_waits_are_capped_however_many_retries():
+    from geonorm.batch.remote import _backoff_wait
+
+    assert 0.25 <= _backoff_wait(0.5, 1) < 0.75
+    assert _backoff_wait(0.5, 5000) <= MAX_RETRY_AFTER  # no overflow, no hour-long wait
+
+
+@pytest.mark.parametrize(
+    ("value", "expected"),
+    [
+        (b"inf", None),
+        (b"1e3", None),
+        (b"1_000", None),
+        (b"2.5", 2.5),
+        ("١٢".encode(), None),  # digits of another script are no delta-seconds
+        (b"9" * 5000, MAX_RETRY_AFTER),  # longer than an int may be read, still capped
+    ],
+)
+def test_retry_after_is_read_strictly(value, expected):
+    response = httpx.Response(429, headers=[(b"Retry-After", value)])
+    assert _retry_after(response) == expected
+
+
+def test_answers_beyond_the_size_cap_are_errors_and_are_not_read(tmp_path):
+    import tracemalloc
+
+    cap = 1_000_000  # the documented default
+    behaviour = Behaviour(
+        answers={"xantheport": [hit("NO", 59.91, 10.75, "Oslo")]},
+        huge={
+            "zorbaville": (30 * cap, True),  # its length declared: not read at all
+            "quellmoor": (30 * cap, False),  # undeclared: read up to the cap
+            "brindleford": (cap, False),  # exactly the cap: read
+        },
+    )
+    keys = ["zorbaville", "quellmoor", "brindleford", "xantheport"]
+    with FixtureServer(behaviour) as server:
+        adapter = TomlAdapter(adapter_file(tmp_path / "a.toml", server.url, concurrency=1))
+        tracemalloc.start()
+        try:
+            with Cache(tmp_path / "cache.sqlite") as cache:
+                summary = run_remote(adapter, [(k, 4 - i) for i, k in enumerate(keys)], cache)
+                run_remote(adapter, [(k, 1) for k in keys], cache)  # a rerun asks nothing
+            peak = tracemalloc.get_traced_memory()[1]
+        finally:
+            tracemalloc.stop()
+        assert server.counts() == dict.fromkeys(keys, 1)
+        assert peak < 10 * cap, peak  # a 30 MB answer is never held
+        assert (summary.errors, summary.no_result, summary.results) == (2, 1, 1)
+        answers, used = _cache_state(tmp_path / "cache.sqlite", keys=keys)
+        too_big = RemoteAnswer("error", error="the answer is larger than 1,000,000 bytes")
+        assert answers["zorbaville"] == answers["quellmoor"] == too_big and used == 4
+        small = TomlAdapter(tmp_path / "a.toml", max_answer_bytes=50)  # the Python API sets it
+        with Cache(tmp_path / "c2.sqlite") as cache:
+            run_remote(small, [("xantheport", 1)], cache)
+            assert cache.remote_answers(small.name, ["xantheport"])["xantheport"].error == (
+                "the answer is larger than 50 bytes"
+            )
+    from geonorm.batch.remote import MAX_ANSWER_BYTES
+
+    assert cap == MAX_ANSWER_BYTES
+
+
+def test_remote_fields_are_validated_before_they_reach_the_output(tmp_path):
+    formula = '=HYPERLINK("http://example.invalid","Paris")'
+    behaviour = Behaviour(
+        answers={
+            # a city the index does not know: dropped, with its coordinates
+            "zorbaville": [hit("FR", 48.85, 2.35, formula)],
+            # a boolean is no score: the default trust applies
+            "quellmoor": [hit("CA", 49.25, -123.12, "Vancouver", "CA-BC", certainty=True)],
+            # a city and a subdivision of another country: both dropped
+            "brindleford": [hit("FR", 49.25, -123.12, "Vancouver", "CA-BC")],
+            # the subdivision stays when the city goes
+            "xantheport": [hit("CA", 52.0, -110.0, formula, "CA-BC")],
+        },
+        raw={
+            "glimmerholt": b'{"matches": [{"where": {"country": "DE", "settlement": "Berlin"}, '
+            b'"lat": 52.52, "lon": 13.4, "certainty": NaN}]}'
+        },
+    )
+    with FixtureServer(behaviour) as server:
+        adapter = adapter_file(tmp_path / "a.toml", server.url)
+        texts = ["zorbaville", "quellmoor", "brindleford", "xantheport", "glimmerholt"]
+        src = _table(tmp_path / "in.csv", dict.fromkeys(texts, 1))
+        r = _clean(tmp_path, src, adapter)
+    assert r.exit_code == 0, r.output
+    rows = {row["location"]: row for row in _rows(tmp_path)}
+    got = {
+        k: tuple(row[f"geo_{c}"] for c in ("country", "subdivision", "city", "lat"))
+        for k, row in rows.items()
+    }
+    assert got == {
+        "Zorbaville": ("FR", "", "", ""),
+        "Quellmoor": ("CA", "CA-BC", "Vancouver", "49.25000"),
+        "Brindleford": ("FR", "", "", ""),
+        "Xantheport": ("CA", "CA-BC", "", ""),
+        "Glimmerholt": ("DE", "DE-BE", "Berlin", "52.52000"),
+    }
+    confidences = {k: float(row["geo_confidence"]) for k, row in rows.items()}
+    assert confidences["Quellmoor"] == confidences["Glimmerholt"] == round(0.8 * 0.85, 4)
+    assert confidences["Zorbaville"] == round(0.9 * 0.85, 4)
+    assert "HYPERLINK" not in (tmp_path / "out.csv").read_text(encoding="utf-8")
+
+
+def test_merge_checks_what_any_adapter_or_cache_entry_holds(resolver):
+    index = resolver.index
+    nothing = Resolution(Status.UNMATCHED, Reason.NO_MATCH)
+
+    def merged(*hits):
+        return merge(nothing, RemoteAnswer("ok", list(hits)), "svc", index)
+
+    for bad in (
+        RemoteHit("FR", True, 4.8),  # a boolean is no coordinate
+        RemoteHit("FR", float("nan"), 4.8),
+        RemoteHit("FR", 45.0, float("inf")),
+        RemoteHit("FR", "45.0", 4.8),  # type: ignore[arg-type]
+        RemoteHit(250, 45.0, 4.8),  # type: ignore[arg-type]
+        RemoteHit("Atlantis", 45.0, 4.8),
+    ):
+        assert merged(bad) is nothing, bad
+    lyon = merged(RemoteHit("FR", 45.76, 4.84, "Lyon", "", float("nan")))
+    assert (lyon.city, lyon.geonameid, lyon.confidence) == ("Lyon", 2996944, 0.68)
+    odd = merged(RemoteHit("FR", 45.76, 4.84, ["Lyon"], {"x": 1}, 7.0))  # type: ignore[arg-type]
+    assert (odd.country, odd.city, odd.lat, odd.subdivision, odd.confidence) == (
+        "FR",
+        "",
+        None,
+        "",
+        0.68,
+    )

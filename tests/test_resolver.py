@@ -126,8 +126,11 @@ def test_reranked_answers_take_the_threshold_of_the_run(resolver):
 def test_cascade_is_an_ordered_list_of_stages(resolver):
     assert [s.name for s in resolver.stages] == [
         "flag",
+        "coordinates",
+        "time_zone",
         "postcode",
         "country",
+        "abbreviation",
         "subdivision",
         "city",
     ]

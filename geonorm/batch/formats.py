@@ -4,7 +4,17 @@ Every column is read as text (CSV, TSV) or with its own type (Parquet), so
 nothing but the added geo columns changes; rows keep their order. Files are
 read twice in a streaming way: once for the location column (distinct values
 and counts), once to write the output, so memory follows the number of
-distinct strings, not the number of rows.
+distinct strings, not the number of rows. JSON Lines records are parsed here,
+keeping the original text of each value, so both passes read a record's
+location the same way and nothing is keyed on a re-serialised value.
+
+Every file a run writes (the output, the bad lines, the report) is a
+``Target``, checked before any work: not the input, not another file of the
+same run, not a folder, device or pipe, in a folder that exists and can be
+written. It is written to a partial file ``.<name>.geonorm-partial-<pid>``
+beside it and renamed over it only when complete and, for the output, only
+when it holds exactly as many rows as the input. A later run removes the
+partial files a killed run left for the same name.
 """
 
 from __future__ import annotations
@@ -12,34 +22,44 @@ from __future__ import annotations
 import codecs
 import contextlib
 import csv
+import io
 import json
 import os
+import re
 import shutil
+import stat
 import sys
 import tempfile
 from collections import Counter
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Any
 
 import polars as pl
 
-from ..errors import InputError
+from ..errors import GeonormError, InputError
 from .schema import GEO_FIELDS, NUMERIC_FIELDS, GeoRow
 
 __all__ = [
     "FORMATS",
     "Source",
+    "Target",
     "as_text_row",
+    "check_targets",
+    "check_writable_as",
     "count_values",
     "find_ragged",
     "lazy_table",
     "open_source",
     "output_format",
+    "printable",
+    "quoted",
     "read_columns",
     "read_header",
     "set_aside",
     "write_output",
+    "writing",
 ]
 
 FORMATS = ("csv", "tsv", "parquet", "jsonl")
@@ -64,17 +84,38 @@ _MAGIC = {
     b"\xff\xd8\xff": "a JPEG image",
     b"SQLite format 3": "an SQLite database",
 }
-NULL_KEY = "\x00"  # join key standing for a missing value
+_HEAD = 8192  # bytes read to tell what a file is
+# Control bytes other than tab, line feed and carriage return. Text holds almost none;
+# random or binary data about one byte in nine (30 of 256 values). More than one in
+# twenty, and at least four, means binary (from memory, not tuned).
+_CONTROL = bytes([*range(0x00, 0x09), 0x0B, 0x0C, *range(0x0E, 0x20), 0x7F])
+_PARTIAL = ".geonorm-partial-"  # .<output name>.geonorm-partial-<pid>, beside the output
+_WORK = "geonorm-work-"  # geonorm-work-<pid>-…, in the system's temporary folder
+_POLARS_ERRORS: tuple[type[BaseException], ...] = (
+    pl.exceptions.PolarsError,
+    pl.exceptions.PanicException,  # a fault inside polars: still a message, not a traceback
+    OSError,
+    UnicodeDecodeError,
+)
+_SERIES_ERRORS: tuple[type[BaseException], ...] = (
+    TypeError,
+    ValueError,
+    OverflowError,
+    *_POLARS_ERRORS,
+)
+_SURROGATE = re.compile(r"\\u[dD][89a-fA-F][0-9a-fA-F]{2}")
 csv.field_size_limit(min(sys.maxsize, 2**31 - 1))
 
 
 @dataclass
 class Source:
     name: str  # as the user gave it, for messages
-    path: Path  # a readable file in UTF-8 (stdin and other encodings are copied)
+    path: Path  # a readable file in UTF-8 with line feeds (stdin and other files are copied)
     format: str
     separator: str = ","
     temp: list[Path] = field(default_factory=list)
+    columns: list[str] | None = None  # the header, once read
+    notes: list[str] = field(default_factory=list)  # what reading did that a user should know
 
     def cleanup(self) -> None:
         for p in self.temp:
@@ -82,10 +123,241 @@ class Source:
                 p.unlink()
 
 
-def _tempfile(suffix: str, near: Path | None = None) -> Path:
-    fd, name = tempfile.mkstemp(prefix="geonorm-", suffix=suffix, dir=near)
+def printable(text: str, limit: int = 200) -> str:
+    """``text`` safe to show on a terminal: control and format characters escaped, cut at
+    ``limit`` characters. Text read from a file is never echoed raw."""
+    cut = text if len(text) <= limit else text[:limit] + "…"
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in cut)
+
+
+def quoted(name: str, limit: int = 60) -> str:
+    """A column name for a message: quoted, escaped like ``repr``, long names cut."""
+    return repr(name if len(name) <= limit else name[:limit] + "…")
+
+
+# --- work files and partial files ---------------------------------------------------------
+
+
+def _tempfile(suffix: str) -> Path:
+    """A private work file in the system's temporary folder, named with this process's id so
+    that a later run removes it if this one is killed."""
+    fd, name = tempfile.mkstemp(prefix=f"{_WORK}{os.getpid()}-", suffix=suffix)
     os.close(fd)
     return Path(name)
+
+
+def _alive(pid: int) -> bool:
+    """Whether process ``pid`` may still run (when in doubt, yes)."""
+    if os.name != "posix" or pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:
+        return True
+    return True
+
+
+def _remove_stale(folder: Path, prefix: str) -> None:
+    """Remove this user's files ``<prefix><pid>…`` in ``folder`` whose process has ended."""
+    if os.name != "posix":
+        return
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return
+    for entry in entries:
+        if not entry.name.startswith(prefix):
+            continue
+        pid = entry.name[len(prefix) :].split("-", 1)[0]
+        with contextlib.suppress(OSError):
+            st = entry.stat(follow_symlinks=False)
+            if (
+                pid.isdigit()
+                and stat.S_ISREG(st.st_mode)
+                and st.st_uid == os.getuid()
+                and not _alive(int(pid))
+            ):
+                os.unlink(entry.path)
+
+
+@dataclass
+class Target:
+    """A file a run writes: where it goes, how messages name it, the mode it gets."""
+
+    label: str  # "the output", "the `report` file" …
+    given: str  # as the user gave it
+    path: Path | None = None  # symlinks followed; None for standard output
+    mode: int = 0o600
+
+    @property
+    def partial(self) -> Path:
+        assert self.path is not None
+        return self.path.parent / f".{self.path.name}{_PARTIAL}{os.getpid()}"
+
+    def begin(self) -> Path:
+        """Create the (private) partial file to write into."""
+        if self.path is None:
+            return _tempfile(".out")
+        partial = self.partial
+        partial.unlink(missing_ok=True)
+        os.close(os.open(partial, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600))
+        return partial
+
+    def finish(self, tmp: Path) -> None:
+        """Put the complete partial file in place (or copy it to standard output)."""
+        if self.path is None:
+            with open(tmp, "rb") as fh:
+                shutil.copyfileobj(fh, sys.stdout.buffer, 1 << 20)
+            sys.stdout.buffer.flush()
+            return
+        os.chmod(tmp, self.mode)
+        os.replace(tmp, self.path)
+
+
+@contextlib.contextmanager
+def writing(target: Target) -> Iterator[Path]:
+    """A partial file to write ``target`` into: put in place when the block ends without an
+    error, removed otherwise."""
+    tmp: Path | None = None
+    try:
+        tmp = target.begin()
+        yield tmp
+        target.finish(tmp)
+    except OSError as exc:
+        raise InputError(
+            f"cannot write {target.label} {target.given} ({exc.strerror or exc})",
+            hint="check the folder is writable and the disk has space",
+        ) from exc
+    finally:
+        if tmp is not None:
+            with contextlib.suppress(OSError):
+                tmp.unlink()
+
+
+def _stat(path: Path) -> os.stat_result | None:
+    try:
+        return os.stat(path)
+    except OSError:
+        return None
+
+
+def _same(a: Path | None, sa: os.stat_result | None, b: Path | None, sb: os.stat_result | None):
+    return (a is not None and a == b) or (
+        sa is not None and sb is not None and os.path.samestat(sa, sb)
+    )
+
+
+def _input_identity(input: str | Path) -> tuple[Path | None, os.stat_result | None]:
+    """The input's real path and status; for standard input, the file it was redirected from."""
+    if str(input) == "-":
+        try:
+            st = os.fstat(sys.stdin.fileno())
+        except (AttributeError, OSError, ValueError):
+            return None, None
+        return None, st if stat.S_ISREG(st.st_mode) else None
+    real = Path(os.path.realpath(input))
+    return real, _stat(real)
+
+
+_KINDS: tuple[tuple[Callable[[int], bool], str], ...] = (
+    (stat.S_ISDIR, "a folder"),
+    (stat.S_ISCHR, "a device"),
+    (stat.S_ISBLK, "a device"),
+    (stat.S_ISFIFO, "a named pipe"),
+    (stat.S_ISSOCK, "a socket"),
+)
+
+
+def _refuse_special(label: str, given: str, st: os.stat_result) -> None:
+    kind = next((k for test, k in _KINDS if test(st.st_mode)), "not a regular file")
+    if kind == "a folder":
+        raise InputError(f"{label} {given} is a folder", hint="name a file inside it")
+    raise InputError(
+        f"{label} {given} is {kind}, not a regular file; geonorm only writes regular files",
+        hint="name a regular file; to throw the output away, write to standard output (-) "
+        "and redirect that to /dev/null",
+    )
+
+
+def _probe(label: str, given: str, target: Path) -> int:
+    """Check a new file can be made in ``target``'s folder; the mode new files get there."""
+    folder = Path(os.path.dirname(given) or ".")
+    if not target.parent.exists():
+        raise InputError(
+            f"cannot write {label} {given}: the folder {folder} does not exist",
+            hint="create the folder first, or choose another path",
+        )
+    if not target.parent.is_dir():
+        raise InputError(
+            f"cannot write {label} {given}: {folder} is not a folder", hint="choose another path"
+        )
+    probe = target.parent / f".{target.name}{_PARTIAL}{os.getpid()}"
+    try:
+        probe.unlink(missing_ok=True)  # named with this process's id: left by an earlier one
+        fd = os.open(probe, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+        try:
+            return stat.S_IMODE(os.fstat(fd).st_mode)
+        finally:
+            os.close(fd)
+            probe.unlink()
+    except OSError as exc:
+        raise InputError(
+            f"cannot write {label} {given}: the folder {folder} is not writable "
+            f"({exc.strerror or exc})",
+            hint="choose a folder you can write to",
+        ) from exc
+
+
+def check_targets(
+    input: str | Path, outputs: Mapping[str, tuple[str, str | Path | None]]
+) -> dict[str, Target]:
+    """Check the files a run will write, before any work; ``outputs`` maps a key to (label for
+    messages, path or None). ``"-"`` as ``output`` is standard output.
+
+    Refused: a path that is the input (same real path, or same file through a link), or
+    another file of the run; an existing folder, device, pipe or socket; a folder that is
+    missing or cannot be written. A new file gets the input's read and write permissions, a
+    replaced file keeps its own. Partial files left by killed runs for the same names go.
+    """
+    in_real, in_st = _input_identity(input)
+    done: dict[str, tuple[Target, os.stat_result | None]] = {}
+    for key, (label, given) in outputs.items():
+        if given is None:
+            continue
+        name = str(given)
+        if key == "output" and name == "-":
+            done[key] = (Target(label, "standard output"), None)
+            continue
+        real = Path(os.path.realpath(name))
+        st = _stat(real)
+        if st is not None and not stat.S_ISREG(st.st_mode):
+            _refuse_special(label, name, st)
+        if _same(real, st, in_real, in_st):
+            raise InputError(
+                f"{label} {name} is the input file",
+                hint="write to another file: geonorm never replaces its input",
+            )
+        for other, other_st in done.values():
+            if _same(real, st, other.path, other_st):
+                raise InputError(
+                    f"{label} {name} is also {other.label}",
+                    hint="give each file of the run its own name",
+                )
+        new_mode = _probe(label, name, real)
+        _remove_stale(real.parent, f".{real.name}{_PARTIAL}")
+        if st is not None:
+            mode = stat.S_IMODE(st.st_mode)
+        elif in_st is not None:
+            mode = stat.S_IMODE(in_st.st_mode) & 0o666
+        else:
+            mode = new_mode
+        done[key] = (Target(label, name, real, mode), st)
+    return {key: target for key, (target, _) in done.items()}
+
+
+# --- opening an input ---------------------------------------------------------------------
 
 
 def _detect_format(path: Path, head: bytes, given: str | None) -> str:
@@ -118,6 +390,11 @@ def _line_of(data_path: Path, byte_offset: int) -> int:
         return fh.read(byte_offset).count(b"\n") + 1
 
 
+def _head(path: Path) -> bytes:
+    with open(path, "rb") as fh:
+        return fh.read(_HEAD)
+
+
 def _transcode(src: Path, encoding: str, name: str) -> Path:
     """Copy a file in another encoding to a temporary UTF-8 file, streaming."""
     out = _tempfile(".csv")
@@ -143,6 +420,34 @@ def _transcode(src: Path, encoding: str, name: str) -> Path:
     return out
 
 
+def _unix_lines(src: Path, quotes: bool) -> Path:
+    """Copy a file whose lines end in a bare carriage return (old Mac files) with line feeds
+    instead. With ``quotes``, carriage returns inside quoted fields stay, so every value keeps
+    its content; invalid bytes pass through unchanged, for the UTF-8 check to report."""
+    out = _tempfile(".csv")
+    inside = False
+    try:
+        with (
+            open(src, encoding="utf-8", errors="surrogateescape", newline="") as fin,
+            open(out, "w", encoding="utf-8", errors="surrogateescape", newline="") as fout,
+        ):
+            while chunk := fin.read(1 << 20):
+                if not quotes:
+                    fout.write(chunk.replace("\r", "\n"))
+                    continue
+                pieces = []
+                for i, part in enumerate(chunk.split('"')):
+                    if i:
+                        inside = not inside
+                        pieces.append('"')
+                    pieces.append(part if inside else part.replace("\r", "\n"))
+                fout.write("".join(pieces))
+    except BaseException:
+        out.unlink(missing_ok=True)
+        raise
+    return out
+
+
 def _first_invalid_utf8_line(path: Path) -> int | None:
     with open(path, "rb") as fh:
         for n, line in enumerate(fh, start=1):
@@ -153,6 +458,113 @@ def _first_invalid_utf8_line(path: Path) -> int | None:
     return None
 
 
+def _locate(input: str | Path) -> tuple[str, Path, list[Path]]:
+    """The input's name for messages and a path to read (standard input is copied first)."""
+    name = str(input)
+    if name == "-":
+        path = _tempfile(".in")
+        try:
+            with open(path, "wb") as fh:
+                shutil.copyfileobj(sys.stdin.buffer, fh, 1 << 20)
+        except BaseException:
+            path.unlink(missing_ok=True)
+            raise
+        return "standard input", path, [path]
+    path = Path(input)
+    if not path.exists():
+        raise InputError(f"input file {path} does not exist", hint="check the path and try again")
+    if path.is_dir():
+        raise InputError(f"{path} is a folder, not a file", hint="pass the file inside it")
+    return name, path, []
+
+
+def _refuse_other_formats(name: str, head: bytes, fmt: str) -> None:
+    for magic, what in _MAGIC.items():
+        if head.startswith(magic) and fmt != "parquet":
+            raise InputError(
+                f"{name} looks like {what}, not a table geonorm reads",
+                hint="export it as CSV, or pass a CSV, TSV, Parquet or JSON Lines file",
+            )
+    if fmt == "parquet" and not head.startswith(b"PAR1"):
+        raise InputError(
+            f"{name} is not a Parquet file",
+            hint="pass `format` to say what it is, or check the file",
+        )
+
+
+def _encoding_of(head: bytes, encoding: str) -> str:
+    """The encoding to read with, normalised ("utf-8" needs no copy)."""
+    enc = encoding.lower().replace("_", "-")
+    if enc in ("utf-8", "utf8", "utf-8-sig"):
+        # A UTF-16 byte order mark says what the file is.
+        return "utf-16" if head[:2] in (b"\xff\xfe", b"\xfe\xff") else "utf-8"
+    try:
+        codecs.lookup(enc)
+    except LookupError as exc:
+        raise InputError(
+            f"unknown encoding {encoding!r}",
+            hint="use a name Python knows, such as utf-8, latin-1, cp1252 or utf-16",
+        ) from exc
+    return enc
+
+
+def _refuse_binary(name: str, head: bytes, utf8: bool) -> None:
+    controls = len(head) - len(head.translate(None, _CONTROL))
+    if head.count(b"\x00") > len(head) // 10 or (controls >= 4 and controls * 20 > len(head)):
+        raise InputError(
+            f"{name} looks like a binary file, not text",
+            hint="pass a CSV, TSV, Parquet or JSON Lines file, or give its `encoding`",
+        )
+    if utf8:
+        try:
+            codecs.getincrementaldecoder("utf-8")().decode(head, final=False)
+        except UnicodeDecodeError as exc:
+            line = head[: exc.start].count(b"\n") + 1
+            raise InputError(
+                f"{name} is not valid UTF-8 text (line {line})",
+                hint="pass the file's encoding with `encoding`, for example `encoding` cp1252",
+            ) from exc
+
+
+def _cr_only(head: bytes) -> bool:
+    """Whether lines end in a bare carriage return (a full head may end inside a CR LF)."""
+    probe = head if len(head) < _HEAD else head.rstrip(b"\r")
+    return b"\n" not in head and b"\r" in probe
+
+
+def _prepare(
+    name: str,
+    path: Path,
+    temp: list[Path],
+    encoding: str,
+    separator: str | None,
+    input_format: str | None,
+) -> Source:
+    head = _head(path)
+    if not head:
+        raise InputError(f"{name} is empty", hint="pass a file with a header line and rows")
+    fmt = _detect_format(path, head, input_format)
+    _refuse_other_formats(name, head, fmt)
+    if fmt == "parquet":
+        return Source(name, path, fmt, temp=temp)
+    enc = _encoding_of(head, encoding)
+    if enc != "utf-8":
+        path = _transcode(path, enc, name)
+        temp.append(path)
+        head = _head(path)
+    _refuse_binary(name, head, utf8=enc == "utf-8")
+    if _cr_only(head):
+        path = _unix_lines(path, quotes=fmt != "jsonl")
+        temp.append(path)
+        head = _head(path)
+    if head.startswith(codecs.BOM_UTF8):
+        head = head[3:]
+    sep = separator or (
+        "\t" if fmt == "tsv" else _sniff_separator(head.split(b"\n")[0].decode("utf-8", "replace"))
+    )
+    return Source(name, path, fmt, sep, temp)
+
+
 def open_source(
     input: str | Path,
     *,
@@ -160,71 +572,15 @@ def open_source(
     separator: str | None = None,
     input_format: str | None = None,
 ) -> Source:
-    """Check the input and make it a readable UTF-8 file (copying stdin if needed)."""
-    name = str(input)
-    temp: list[Path] = []
-    if name == "-":
-        path = _tempfile(".in")
-        with open(path, "wb") as fh:
-            shutil.copyfileobj(sys.stdin.buffer, fh, 1 << 20)
-        temp.append(path)
-        name = "standard input"
-    else:
-        path = Path(input)
-        if not path.exists():
-            raise InputError(
-                f"input file {path} does not exist", hint="check the path and try again"
-            )
-        if path.is_dir():
-            raise InputError(f"{path} is a folder, not a file", hint="pass the file inside it")
-    with open(path, "rb") as fh:
-        head = fh.read(8192)
-    if not head:
+    """Check the input and make it a readable UTF-8 file with line feeds (copying if needed)."""
+    _remove_stale(Path(tempfile.gettempdir()), _WORK)
+    name, path, temp = _locate(input)
+    try:
+        return _prepare(name, path, temp, encoding, separator, input_format)
+    except BaseException:
         for p in temp:
-            p.unlink()
-        raise InputError(f"{name} is empty", hint="pass a file with a header line and rows")
-    fmt = _detect_format(path, head, input_format)
-    for magic, what in _MAGIC.items():
-        if head.startswith(magic) and fmt != "parquet":
-            for p in temp:
-                p.unlink()
-            raise InputError(
-                f"{name} looks like {what}, not a table geonorm reads",
-                hint="export it as CSV, or pass a CSV, TSV, Parquet or JSON Lines file",
-            )
-    if fmt == "parquet":
-        if not head.startswith(b"PAR1"):
-            raise InputError(
-                f"{name} is not a Parquet file",
-                hint="pass `format` to say what it is, or check the file",
-            )
-        return Source(name, path, fmt, temp=temp)
-    enc = encoding.lower().replace("_", "-")
-    if head[:2] in (b"\xff\xfe", b"\xfe\xff") and enc in ("utf-8", "utf8", "utf-8-sig"):
-        enc = "utf-16"  # a UTF-16 byte order mark says what the file is
-    if enc not in ("utf-8", "utf8", "utf-8-sig"):
-        try:
-            codecs.lookup(enc)
-        except LookupError as exc:
-            raise InputError(
-                f"unknown encoding {encoding!r}",
-                hint="use a name Python knows, such as utf-8, latin-1, cp1252 or utf-16",
-            ) from exc
-        path = _transcode(path, enc, name)
-        temp.append(path)
-        with open(path, "rb") as fh:
-            head = fh.read(8192)
-    elif head.count(b"\x00") > len(head) // 10:
-        raise InputError(
-            f"{name} looks like a binary file, not text",
-            hint="pass a CSV, TSV, Parquet or JSON Lines file, or give its `encoding`",
-        )
-    if head.startswith(codecs.BOM_UTF8):
-        head = head[3:]
-    sep = separator or (
-        "\t" if fmt == "tsv" else _sniff_separator(head.split(b"\n")[0].decode("utf-8", "replace"))
-    )
-    return Source(name, path, fmt, sep, temp)
+            p.unlink(missing_ok=True)
+        raise
 
 
 def output_format(output: str, given: str | None, source: Source) -> str:
@@ -243,6 +599,9 @@ def output_format(output: str, given: str | None, source: Source) -> str:
             hint="end the name with .csv, .tsv, .parquet or .jsonl, or pass `format`",
         )
     return fmt
+
+
+# --- reading ------------------------------------------------------------------------------
 
 
 def _scan(source: Source) -> pl.LazyFrame:
@@ -273,11 +632,50 @@ def read_columns(source: Source, columns: list[str]) -> pl.DataFrame:
             .select([pl.col(c).cast(pl.String).fill_null("") for c in dict.fromkeys(columns)])
             .collect()
         )
-    except (pl.exceptions.PolarsError, OSError, UnicodeDecodeError) as exc:
+    except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
 
 
-def _polars_error(source: Source, exc: Exception) -> InputError:
+def _quote_problem(source: Source) -> tuple[int, str] | None:
+    """The first misplaced double quote of a CSV file: its line and what is wrong."""
+    sep, line, opened = source.separator, 1, 0
+    state = "start"  # start of a field, "plain" field, "quoted" field, "closing" quote seen
+    with open(source.path, encoding="utf-8-sig", errors="replace", newline="") as fh:
+        for text in fh:  # one line, with its line break
+            if state != "quoted" and '"' not in text:
+                line += text.endswith("\n")  # a line without quotes: nothing to check
+                continue
+            for ch in text:
+                if state == "quoted":
+                    line += ch == "\n"
+                    state = "closing" if ch == '"' else state
+                    continue
+                if state == "closing" and ch == '"':
+                    state = "quoted"  # a doubled quote inside a quoted field
+                    continue
+                if state == "closing" and ch not in (sep, "\n", "\r"):
+                    return line, "has text after the closing quote of a field"
+                if ch == '"' and state == "plain":
+                    return line, "has a quote inside a field that does not start with one"
+                if ch == '"':
+                    state, opened = "quoted", line
+                elif ch in (sep, "\n", "\r"):
+                    state = "start"
+                    line += ch == "\n"
+                else:
+                    state = "plain"
+    return (opened, "opens a quote that is never closed") if state == "quoted" else None
+
+
+_READ_HINTS = {
+    "csv": "check the file's format, separator (`separator`) and encoding (`encoding`)",
+    "tsv": "check the file's format, separator (`separator`) and encoding (`encoding`)",
+    "parquet": "check the file is a whole Parquet file, or pass `format` to say what it is",
+    "jsonl": "each line of a JSON Lines file must be one JSON object",
+}
+
+
+def _polars_error(source: Source, exc: BaseException) -> InputError:
     text = str(exc)
     if isinstance(exc, UnicodeDecodeError) or "utf-8" in text.lower() or "utf8" in text.lower():
         line = _first_invalid_utf8_line(source.path)
@@ -291,76 +689,213 @@ def _polars_error(source: Source, exc: Exception) -> InputError:
             f"{source.name} has rows with more fields than its header",
             hint="fix those rows, or pass `bad_lines` FILE to set them aside and go on",
         )
-    first = text.strip().splitlines()[0] if text.strip() else type(exc).__name__
+    if source.format in ("csv", "tsv"):
+        problem = _quote_problem(source)
+        if problem:
+            return InputError(
+                f"{source.name} line {problem[0]} {problem[1]}",
+                hint="put a field that holds quotes, separators or line breaks in double quotes, "
+                'and double each quote inside it (""); or check `separator`',
+            )
+    first = printable(text.strip().splitlines()[0]) if text.strip() else type(exc).__name__
     return InputError(
         f"cannot read {source.name} as {source.format.upper()} ({first})",
-        hint="check the file's format, separator (`separator`) and encoding (`encoding`)",
+        hint=_READ_HINTS.get(source.format, _READ_HINTS["csv"]),
     )
 
 
+def _refuse_duplicates(
+    name: str, names: Sequence[str], where: str = "", what: str = "column"
+) -> None:
+    twice = [n for n, count in Counter(names).items() if count > 1]
+    if twice:
+        raise InputError(
+            f"{name}{where} has more than one {what} named {', '.join(map(quoted, twice))}",
+            hint=f"rename the {what}s so that each name is used once",
+        )
+
+
+def _csv_header(source: Source) -> list[str]:
+    """The header record as Python's csv module reads it (polars renames duplicates)."""
+    with open(source.path, encoding="utf-8-sig", errors="replace", newline="") as fh:
+        text = fh.read(1 << 20)
+    return next(csv.reader(io.StringIO(text), delimiter=source.separator), [])
+
+
 def read_header(source: Source) -> list[str]:
-    if source.format == "jsonl":
-        keys: dict[str, None] = {}
-        for _, obj in _jsonl_records(source, limit=100):
-            keys.update(dict.fromkeys(obj))
-        return list(keys)
+    """The column names; refuses a name used twice. JSON Lines: the keys of every record, in
+    the order first seen."""
+    if source.columns is None:
+        if source.format == "jsonl":
+            keys: dict[str, None] = {}
+            for _, fields in _jsonl_records(source):
+                keys.update((key, None) for key, _ in fields)
+            source.columns = list(keys)
+        else:
+            if source.format in ("csv", "tsv"):
+                _refuse_duplicates(source.name, _csv_header(source))
+            source.columns = _schema_names(source)
+    return list(source.columns)
+
+
+def _schema_names(source: Source) -> list[str]:
     try:
         return list(_scan(source).collect_schema().names())
     except pl.exceptions.NoDataError as exc:
         raise InputError(
             f"{source.name} is empty", hint="pass a file with a header line and rows"
         ) from exc
-    except (pl.exceptions.PolarsError, OSError) as exc:
+    except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
 
 
-def _jsonl_records(source: Source, limit: int | None = None) -> Iterator[tuple[int, dict]]:
-    with open(source.path, encoding="utf-8-sig", errors="strict") as fh:
-        n = 0
-        for lineno, line in enumerate(fh, start=1):
-            if not line.strip():
-                continue
+# --- JSON Lines records -------------------------------------------------------------------
+
+
+class _Pairs(list[tuple[str, Any]]):
+    """A JSON object's members in their order, as (name, value) pairs (so a name given twice is
+    seen)."""
+
+
+class _Num(str):
+    """A JSON number as written (``1e5`` stays ``1e5``)."""
+
+
+# Objects keep their members' order and numbers their text; as fast as a plain json.loads.
+_DECODER = json.JSONDecoder(
+    object_pairs_hook=_Pairs, parse_float=_Num, parse_int=_Num, parse_constant=_Num
+)
+
+
+def _record(name: str, lineno: int, line: str) -> _Pairs:
+    """One JSON Lines record, checked: an object, no key twice, no unpaired surrogate."""
+    hint = "each line of a JSON Lines file must be one JSON object"
+    try:
+        members = _DECODER.decode(line)
+    except json.JSONDecodeError as exc:
+        raise InputError(f"{name} line {lineno} is not valid JSON ({exc.msg})", hint=hint) from exc
+    if not isinstance(members, _Pairs):
+        raise InputError(f"{name} line {lineno} is not a JSON object", hint=hint)
+    if len({key for key, _ in members}) != len(members):
+        _refuse_duplicates(name, [key for key, _ in members], f" line {lineno}", "key")
+    if _SURROGATE.search(line):
+        for key, value in members:
             try:
-                obj = json.loads(line)
-            except json.JSONDecodeError as exc:
+                json.dumps([key, value], ensure_ascii=False).encode("utf-8")
+            except UnicodeEncodeError:
                 raise InputError(
-                    f"{source.name} line {lineno} is not valid JSON ({exc.msg})",
-                    hint="each line of a JSON Lines file must be one JSON object",
-                ) from exc
-            if not isinstance(obj, dict):
-                raise InputError(
-                    f"{source.name} line {lineno} is not a JSON object",
-                    hint="each line of a JSON Lines file must be one JSON object",
-                )
-            yield lineno, obj
-            n += 1
-            if limit and n >= limit:
-                return
+                    f"{name} line {lineno} holds an unpaired surrogate escape (\\ud800 to "
+                    f"\\udfff) in the column {quoted(key)}: it stands for no character",
+                    hint="fix that value: such escapes are only valid in pairs that make "
+                    "one character",
+                ) from None
+    return members
 
 
-def _as_text(value: object) -> str | None:
+def _jsonl_lines(source: Source) -> Iterator[tuple[int, str, _Pairs | None]]:
+    """Every line with its record (None for a blank line)."""
+    try:
+        with open(source.path, encoding="utf-8-sig", errors="strict") as fh:
+            for lineno, line in enumerate(fh, start=1):
+                members = _record(source.name, lineno, line) if line.strip() else None
+                yield lineno, line, members
+    except UnicodeDecodeError as exc:
+        bad = _first_invalid_utf8_line(source.path)
+        raise InputError(
+            f"{source.name} is not valid UTF-8 text" + (f" (line {bad})" if bad else ""),
+            hint="pass the file's encoding with `encoding`, for example `encoding` cp1252",
+        ) from exc
+
+
+def _jsonl_records(source: Source) -> Iterator[tuple[int, _Pairs]]:
+    for lineno, _, members in _jsonl_lines(source):
+        if members is not None:
+            yield lineno, members
+
+
+def _json_text(value: Any) -> str:
+    """A parsed JSON value as JSON text: members in their order, numbers as written."""
+    if isinstance(value, _Pairs):
+        inner = ",".join(f"{json.dumps(k, ensure_ascii=False)}:{_json_text(v)}" for k, v in value)
+        return "{" + inner + "}"
+    if isinstance(value, list):
+        return "[" + ",".join(_json_text(v) for v in value) + "]"
+    if isinstance(value, _Num):
+        return str(value)
+    return json.dumps(value, ensure_ascii=False)
+
+
+def _cell_text(value: Any) -> str | None:
+    """A JSON value as text: a string as itself, null as missing, a number as written, anything
+    else as its JSON text."""
     if value is None:
         return None
-    return value if isinstance(value, str) else json.dumps(value, ensure_ascii=False)
+    if isinstance(value, str) and not isinstance(value, _Num):
+        return value
+    return _json_text(value)
+
+
+def _location_of(members: _Pairs, column: str) -> tuple[str | None, bool]:
+    """A record's location text, and whether it held a list or object (not a location: such a
+    value counts as missing)."""
+    for key, value in members:
+        if key == column:
+            if isinstance(value, list):  # an array, or an object's members
+                return None, True
+            return _cell_text(value), False
+    return None, False
+
+
+def _plain(value: Any) -> Any:
+    """A parsed JSON value as plain Python values (objects as dicts, numbers as numbers)."""
+    if isinstance(value, _Pairs):
+        return {k: _plain(v) for k, v in value}
+    if isinstance(value, list):
+        return [_plain(v) for v in value]
+    if isinstance(value, _Num):
+        return float(value) if any(c in value for c in ".eEIN") else int(value)
+    return value
+
+
+# --- counting -----------------------------------------------------------------------------
+
+
+def _refuse_nested_location(source: Source, column: str) -> None:
+    try:
+        dtype = _scan(source).collect_schema()[column]
+    except _POLARS_ERRORS as exc:
+        raise _polars_error(source, exc) from exc
+    what = {pl.List: "lists", pl.Array: "lists", pl.Struct: "structs", pl.Binary: "binary data"}
+    kind = what.get(dtype.base_type())
+    if kind:
+        raise InputError(
+            f"the column {quoted(column)} of {source.name} holds {kind}, not text",
+            hint="pass the column that holds the location text with `column`",
+        )
 
 
 def count_values(source: Source, column: str) -> tuple[dict[str | None, int], int]:
     """Distinct values of ``column`` with their row counts, and the row count."""
     if source.format == "jsonl":
         counts: Counter[str | None] = Counter()
-        try:
-            for _, obj in _jsonl_records(source):
-                counts[_as_text(obj.get(column))] += 1
-        except UnicodeDecodeError as exc:
-            raise InputError(
-                f"{source.name} is not valid UTF-8 text", hint="JSON Lines files must be UTF-8"
-            ) from exc
+        nested = 0
+        for _, members in _jsonl_records(source):
+            text, is_nested = _location_of(members, column)
+            counts[text] += 1
+            nested += is_nested
+        if nested:
+            source.notes.append(
+                f"{nested:,} row(s) hold a list or an object in the column {quoted(column)}, "
+                "not text: they count as empty"
+            )
         return dict(counts), sum(counts.values())
+    if source.format == "parquet":
+        _refuse_nested_location(source, column)
     try:
         lf = _scan(source).select(pl.col(column).cast(pl.String))
         df = lf.group_by(column).len().collect(engine="streaming")
         values = df.get_column(column).to_list()
-    except (pl.exceptions.PolarsError, OSError, UnicodeDecodeError) as exc:
+    except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
     lens = df.get_column("len").to_list()
     return dict(zip(values, lens, strict=False)), int(sum(lens))
@@ -396,7 +931,7 @@ def find_ragged(source: Source, expected: int) -> list[int]:
             .head(1)
             .collect(engine="streaming")
         )
-    except (pl.exceptions.PolarsError, OSError):
+    except _POLARS_ERRORS:
         suspects = None  # a line with \x1f in it, or similar: check exactly
     if suspects is not None and suspects.height == 0:
         return []
@@ -415,32 +950,91 @@ def find_ragged(source: Source, expected: int) -> list[int]:
     return bad
 
 
-def set_aside(source: Source, expected: int, bad_path: Path) -> tuple[Source, int]:
-    """Write ragged records to ``bad_path`` (with their line numbers), the rest to a new source."""
+def set_aside(source: Source, expected: int, bad: Target) -> tuple[Source, int]:
+    """Write ragged records to ``bad`` (with their line numbers), the rest to a new source."""
     good = _tempfile(".csv")
-    n_bad = 0
-    with (
-        open(source.path, encoding="utf-8-sig", newline="") as fh,
-        open(good, "w", encoding="utf-8", newline="") as fg,
-        open(bad_path, "w", encoding="utf-8", newline="") as fb,
-    ):
-        reader = csv.reader(fh, delimiter=source.separator)
-        # Quote every field: Python's writer would leave a lone \r unquoted.
-        wg = csv.writer(fg, delimiter=source.separator, lineterminator="\n", quoting=csv.QUOTE_ALL)
-        wb = csv.writer(fb, lineterminator="\n", quoting=csv.QUOTE_ALL)
-        header = next(reader)
-        wg.writerow(header)
-        wb.writerow(["line", "fields", "record"])
-        start = reader.line_num
-        for row in reader:
-            if len(row) == expected or not row:
-                if row:
-                    wg.writerow(row)
-            else:
-                n_bad += 1
-                wb.writerow([start + 1, len(row), source.separator.join(row)])
-            start = reader.line_num
-    return Source(source.name, good, source.format, source.separator, [*source.temp, good]), n_bad
+    n_good = n_bad = 0
+    try:
+        with writing(bad) as bad_tmp:
+            with (
+                open(source.path, encoding="utf-8-sig", newline="") as fh,
+                open(good, "w", encoding="utf-8", newline="") as fg,
+                open(bad_tmp, "w", encoding="utf-8", newline="") as fb,
+            ):
+                reader = csv.reader(fh, delimiter=source.separator)
+                # Quote every field: Python's writer would leave a lone \r unquoted.
+                wg = csv.writer(
+                    fg, delimiter=source.separator, lineterminator="\n", quoting=csv.QUOTE_ALL
+                )
+                wb = csv.writer(fb, lineterminator="\n", quoting=csv.QUOTE_ALL)
+                wg.writerow(next(reader, []))
+                wb.writerow(["line", "fields", "record"])
+                start = reader.line_num
+                for row in reader:
+                    if len(row) == expected:
+                        wg.writerow(row)
+                        n_good += 1
+                    elif row:
+                        n_bad += 1
+                        wb.writerow([start + 1, len(row), source.separator.join(row)])
+                    start = reader.line_num
+            kept = Source(source.name, good, source.format, source.separator)
+            kept.columns = source.columns
+            _check_rows(_count_rows(good, "csv", source.separator), n_good, bad.given)
+    except BaseException:
+        good.unlink(missing_ok=True)
+        raise
+    kept.temp = [*source.temp, good]
+    return kept, n_bad
+
+
+# --- writing ------------------------------------------------------------------------------
+
+
+def _check_rows(written: int, rows: int, what: str) -> None:
+    """The row-count invariant of every write: as many rows out as in."""
+    if written != rows:
+        raise GeonormError(
+            f"{written:,} rows were written for {rows:,} rows read: stopped, {what} was not "
+            "written",
+            hint="nothing was replaced; this is a fault in geonorm, please report it with the "
+            "command and the first lines of the file",
+        )
+
+
+def _count_rows(path: Path, fmt: str, separator: str = ",") -> int:
+    if fmt == "parquet":
+        return int(pl.scan_parquet(path).select(pl.len()).collect().item())
+    if fmt == "jsonl":
+        with open(path, "rb") as fh:
+            return sum(1 for line in fh if line.strip())
+    lf = pl.scan_csv(
+        path,
+        separator="\t" if fmt == "tsv" else separator,
+        infer_schema=False,
+        quote_char='"',
+        encoding="utf8",
+        raise_if_empty=False,
+    )
+    return int(lf.select(pl.len()).collect().item())
+
+
+def check_writable_as(source: Source, out_fmt: str) -> None:
+    """Refuse list, struct and binary columns (Parquet) for a text output, which cannot hold
+    them."""
+    if source.format != "parquet" or out_fmt not in ("csv", "tsv"):
+        return
+    try:
+        schema = _scan(source).collect_schema()
+    except _POLARS_ERRORS as exc:
+        raise _polars_error(source, exc) from exc
+    nested = [n for n, t in schema.items() if t.is_nested() or t == pl.Binary]
+    if nested:
+        raise InputError(
+            f"{source.name} has columns of lists, structs or binary data "
+            f"({', '.join(map(quoted, nested))}), which {out_fmt.upper()} cannot hold",
+            hint="write Parquet or JSON Lines instead (`format` parquet)",
+        )
 
 
 def write_output(
@@ -449,39 +1043,18 @@ def write_output(
     mapping: Mapping[str | None, GeoRow],
     geo_names: list[str],
     out_fmt: str,
-    output: str,
-    progress: Callable[[int], None] | None = None,
+    target: Target,
+    rows: int,
 ) -> None:
-    """Write every input row with the geo columns appended, via a temporary file renamed at the
-    end."""
-    to_stdout = output == "-"
-    target = Path(output) if not to_stdout else None
-    tmp = (
-        _tempfile("." + out_fmt, near=target.parent if target else None)
-        if target
-        else _tempfile("." + out_fmt)
-    )
-    try:
-        if source.format == "jsonl" and out_fmt == "jsonl":
-            _write_jsonl(source, column, mapping, geo_names, tmp)
+    """Write every input row with the geo columns appended to ``target``, through a partial file
+    put in place at the end; stop, replacing nothing, unless it holds exactly ``rows`` rows."""
+    check_writable_as(source, out_fmt)
+    with writing(target) as tmp:
+        if source.format == "jsonl":
+            _write_from_jsonl(source, column, mapping, geo_names, out_fmt, tmp)
         else:
             _write_polars(source, column, mapping, geo_names, out_fmt, tmp)
-        if to_stdout:
-            with open(tmp, "rb") as fh:
-                shutil.copyfileobj(fh, sys.stdout.buffer, 1 << 20)
-            sys.stdout.buffer.flush()
-            tmp.unlink()
-        else:
-            os.replace(tmp, target)  # type: ignore[arg-type]
-    except OSError as exc:
-        tmp.unlink(missing_ok=True)
-        raise InputError(
-            f"cannot write {output} ({exc.strerror or exc})",
-            hint="check the folder exists, is writable and the disk has space",
-        ) from exc
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+        _check_rows(_count_rows(tmp, out_fmt), rows, target.given)
 
 
 def as_text_row(geo: GeoRow) -> list[str]:
@@ -498,19 +1071,31 @@ def as_text_row(geo: GeoRow) -> list[str]:
     ]
 
 
-def _mapping_frame(
+def _join_key(value: str | None) -> str:
+    """The join key of a location value: no value and any text, even "\\x00", differ."""
+    return "" if value is None else "=" + value
+
+
+def _geo_frame(
     mapping: Mapping[str | None, GeoRow], geo_names: list[str], typed: bool
 ) -> pl.DataFrame:
-    keys = [NULL_KEY if k is None else k for k in mapping]
+    """The geo columns of each distinct value, in ``mapping``'s order."""
     rows: list[Sequence[object]] = (
         list(mapping.values()) if typed else [as_text_row(g) for g in mapping.values()]
     )
-    data: dict[str, list[object]] = {"__geo_key": list(keys)}
-    schema: dict[str, pl.DataType] = {"__geo_key": pl.String()}
+    data: dict[str, list[object]] = {}
+    schema: dict[str, pl.DataType] = {}
     for i, (name, geo_field) in enumerate(zip(geo_names, GEO_FIELDS, strict=True)):
         data[name] = [r[i] for r in rows]
         schema[name] = pl.Float64() if typed and geo_field in NUMERIC_FIELDS else pl.String()
     return pl.DataFrame(data, schema=schema)
+
+
+def _mapping_frame(
+    mapping: Mapping[str | None, GeoRow], geo_names: list[str], typed: bool, key: str
+) -> pl.DataFrame:
+    keys = pl.Series(key, [_join_key(k) for k in mapping], dtype=pl.String)
+    return _geo_frame(mapping, geo_names, typed).insert_column(0, keys)
 
 
 def _write_polars(
@@ -521,55 +1106,137 @@ def _write_polars(
     out_fmt: str,
     tmp: Path,
 ) -> None:
-    lf = lazy_table(source)
-    table = _mapping_frame(mapping, geo_names, typed=out_fmt in ("parquet", "jsonl")).lazy()
-    key = pl.col(column).cast(pl.String)
-    if source.format == "jsonl":
-        key = (
-            pl.col(column).map_elements(_as_text, return_dtype=pl.String)
-            if lf.collect_schema()[column] != pl.String
-            else key
-        )
-    joined = (
-        lf.with_columns(key.fill_null(NULL_KEY).alias("__geo_key"))
-        .join(table, on="__geo_key", how="left", maintain_order="left")
-        .drop("__geo_key")
-    )
+    lf = _scan(source)
     try:
+        names = set(lf.collect_schema().names())
+        key = "__geo_key"
+        while key in names:
+            key += "_"
+        table = _mapping_frame(mapping, geo_names, out_fmt in ("parquet", "jsonl"), key).lazy()
+        value = pl.concat_str([pl.lit("="), pl.col(column).cast(pl.String)]).fill_null("")
+        joined = (
+            lf.with_columns(value.alias(key))
+            .join(table, on=key, how="left", maintain_order="left")
+            .drop(key)
+        )
         if out_fmt == "parquet":
             joined.sink_parquet(tmp, maintain_order=True)
         elif out_fmt == "jsonl":
             joined.sink_ndjson(tmp, maintain_order=True)
         else:
             joined.sink_csv(tmp, separator="\t" if out_fmt == "tsv" else ",", maintain_order=True)
-    except pl.exceptions.PolarsError as exc:
+    except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
 
 
-def _write_jsonl(
+def _write_from_jsonl(
+    source: Source,
+    column: str,
+    mapping: Mapping[str | None, GeoRow],
+    geo_names: list[str],
+    out_fmt: str,
+    tmp: Path,
+) -> None:
+    if out_fmt == "jsonl":
+        _jsonl_to_jsonl(source, column, mapping, geo_names, tmp)
+    elif out_fmt == "parquet":
+        _jsonl_to_parquet(source, column, mapping, geo_names, tmp)
+    else:
+        _jsonl_to_text(source, column, mapping, geo_names, "\t" if out_fmt == "tsv" else ",", tmp)
+
+
+def _jsonl_to_jsonl(
     source: Source,
     column: str,
     mapping: Mapping[str | None, GeoRow],
     geo_names: list[str],
     tmp: Path,
 ) -> None:
-    """JSON Lines to JSON Lines: each record's text is kept byte for byte, geo keys appended."""
-    with (
-        open(source.path, encoding="utf-8-sig") as fin,
-        open(tmp, "w", encoding="utf-8", newline="") as fout,
-    ):
-        for line in fin:
-            body = line.rstrip("\r\n")
-            if not body.strip():
+    """Each record's text is kept byte for byte, geo keys appended."""
+    with open(tmp, "w", encoding="utf-8", newline="") as fout:
+        for _, line, members in _jsonl_lines(source):
+            if members is None:
                 fout.write(line)
                 continue
-            obj = json.loads(body)
-            geo = mapping[_as_text(obj.get(column))]
+            geo = mapping[_location_of(members, column)[0]]
             extra = ", ".join(
                 f"{json.dumps(n)}: {json.dumps(v, ensure_ascii=False)}"
                 for n, v in zip(geo_names, geo, strict=False)
             )
-            stripped = body.rstrip()
-            inner = stripped[:-1].rstrip()
-            sep = "" if inner.endswith("{") else ", "
-            fout.write(f"{inner}{sep}{extra}}}\n")
+            inner = line.rstrip()[:-1].rstrip()
+            fout.write(f"{inner}{', ' if members else ''}{extra}}}\n")
+
+
+def _csv_cell(value: str | None, sep: str) -> str:
+    """A CSV field written the way polars writes one: missing as nothing, empty text as ""."""
+    if value is None:
+        return ""
+    if value == "" or any(c in value for c in (sep, '"', "\n", "\r")):
+        return '"' + value.replace('"', '""') + '"'
+    return value
+
+
+def _jsonl_to_text(
+    source: Source,
+    column: str,
+    mapping: Mapping[str | None, GeoRow],
+    geo_names: list[str],
+    sep: str,
+    tmp: Path,
+) -> None:
+    """CSV or TSV from JSON Lines: text as itself, null or absent as missing, numbers,
+    booleans, lists and objects as written in the record."""
+    header = read_header(source)
+    with open(tmp, "w", encoding="utf-8", newline="") as fout:
+        fout.write(sep.join(_csv_cell(h, sep) for h in [*header, *geo_names]) + "\n")
+        for _, members in _jsonl_records(source):
+            cells = {key: _cell_text(value) for key, value in members}
+            geo = as_text_row(mapping[_location_of(members, column)[0]])
+            row = [*(cells.get(h) for h in header), *geo]
+            fout.write(sep.join(_csv_cell(c, sep) for c in row) + "\n")
+
+
+def _jsonl_frame(source: Source) -> pl.DataFrame:
+    """The records as a typed table: polars infers the types; where it cannot (a column mixing
+    lists and objects …), such a column holds each value's text as written."""
+    try:
+        return pl.read_ndjson(source.path, infer_schema_length=None)
+    except _POLARS_ERRORS:
+        pass
+    header = read_header(source)
+    values: dict[str, list[Any]] = {h: [] for h in header}
+    texts: dict[str, list[str | None]] = {h: [] for h in header}
+    for _, members in _jsonl_records(source):
+        got = dict(members)
+        for h in header:
+            value = got.get(h)
+            values[h].append(_plain(value))
+            texts[h].append(_cell_text(value))
+    columns = []
+    for h in header:
+        try:
+            columns.append(pl.Series(h, values[h], strict=True))
+        except _SERIES_ERRORS:
+            columns.append(pl.Series(h, texts[h], dtype=pl.String))
+    return pl.DataFrame(columns)
+
+
+def _jsonl_to_parquet(
+    source: Source,
+    column: str,
+    mapping: Mapping[str | None, GeoRow],
+    geo_names: list[str],
+    tmp: Path,
+) -> None:
+    """Parquet from JSON Lines: the geo columns are attached by row position, from each
+    record's own location text."""
+    index = {value: i for i, value in enumerate(mapping)}
+    ids = [index[_location_of(m, column)[0]] for _, m in _jsonl_records(source)]
+    frame = _jsonl_frame(source)
+    _check_rows(frame.height, len(ids), "the output")
+    geo = _geo_frame(mapping, geo_names, typed=True)
+    taken = geo.select(pl.all().gather(pl.Series(ids, dtype=pl.UInt32)))
+    try:
+        frame.hstack(taken.get_columns()).write_parquet(tmp)
+    except _POLARS_ERRORS as exc:
+        raise _polars_error(source, exc) from exc

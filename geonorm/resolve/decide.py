@@ -26,6 +26,7 @@ from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field, replace
 
 from .index import Place
+from .mentions import code_text, cue_roles, ordinary_text, text_language, word_zipf
 from .normalize import Query
 from .resolution import Candidate, Reason, Resolution, Status
 from .stages import Mention, Reading
@@ -37,12 +38,17 @@ from .tuning import (
     CITY_OF_COUNTRY_SHARE,
     CITY_OVER_SUBDIVISION_SHARE,
     CLEAR_SHARE,
+    COMPARABLE_PRIOR,
     FAME_TYPICAL,
+    JUNK_PRIOR,
     LOOSE_PART_FACTOR,
     MAX_CANDIDATES,
     MAX_STRAY_WORDS,
     MIN_EVIDENCE_SHARE,
     MULTI_PENALTY,
+    ORDINARY_STRAY_WEIGHT,
+    ORDINARY_WORD_ZIPF,
+    PRIOR_FULL,
     SCORE_CEILING,
     SCORE_FLOOR,
     SIMILARITY_POWER,
@@ -62,10 +68,12 @@ __all__ = [
     "candidate",
     "city_point",
     "country_shares",
+    "current_places",
     "decide",
     "drop_minor_places",
     "evidence_score",
     "group_places",
+    "strength",
     "weigh",
 ]
 
@@ -297,10 +305,24 @@ def _combine(kept: list[list[Reading]]) -> dict[str, float]:
 # -- 3. places that are not places of their own -------------------------------
 def drop_minor_places(places: list[Weighed]) -> list[Weighed]:
     """Drop places that say nothing next to the others (never all of them)."""
-    for step in (_drop_nationalities, _drop_vague, _drop_strays):
+    for step in (_drop_ordinary_words, _drop_nationalities, _drop_vague, _drop_strays):
         if len(places) > 1:
             places = step(places)
     return places
+
+
+def strength(w: Weighed) -> float:
+    """How surely the place's text is meant as a place at all (the best prior of its
+    mentions, ``mentions.place_prior``)."""
+    return max(m.prior for m in w.group.mentions)
+
+
+def _drop_ordinary_words(places: list[Weighed]) -> list[Weighed]:
+    """A place read from an ordinary word ("city" in "Ibadan, the city of dreams")
+    does not stand beside a place named clearly: only places of comparable strength
+    remain, so a weak reading never turns a clear answer into several countries."""
+    best = max(strength(w) for w in places)
+    return [w for w in places if strength(w) >= COMPARABLE_PRIOR * best]
 
 
 def _drop_nationalities(places: list[Weighed]) -> list[Weighed]:
@@ -334,26 +356,97 @@ def _drop_strays(places: list[Weighed]) -> list[Weighed]:
 
 
 # -- 4. the answer ------------------------------------------------------------
-def decide(query: Query, mentions: list[Mention]) -> Resolution:
-    """The answer for one text from its mentions (status provisional, confidence unset)."""
-    if not mentions:
-        return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
-    groups, qualifiers = group_places(mentions)
-    located = [g for g in groups if not g.is_region()]
-    if not located and not qualifiers:
-        return Resolution(Status.UNMATCHED, Reason.WORLD_REGION)
-    if not located:
-        located, qualifiers = [Group(qualifiers)], []
-    places = [w for w in (weigh(g, qualifiers) for g in located) if w.dist]
-    if not places:
-        return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
+def decide(query: Query, mentions: list[Mention], fictional: Sequence[str] = ()) -> Resolution:
+    """The answer for one text from its mentions (status provisional, confidence unset).
+
+    ``fictional`` are the fictional names found in the text: one that no confirmed
+    place explains makes the text fictional ("Hogwarts, Scotland").
+    """
+    nothing = _nothing_named(query, mentions, fictional)
+    if nothing is not None:
+        return nothing
+    places, reason = _weighed_places(mentions)
+    if reason is not None:
+        return Resolution(Status.UNMATCHED, reason)
     places = drop_minor_places(places)
+    if fictional and not all(_explained(name, places) for name in fictional):
+        return Resolution(Status.NOT_A_PLACE, Reason.FICTIONAL, confidence=1.0, score=1.0)
+    every = places
+    places, by_cue = current_places(places, cue_roles(query, mentions) if len(places) > 1 else {})
     countries = set().union(*(w.dist.keys() for w in places))
     joint = {c: math.prod(w.dist.get(c, 0.0) for w in places) for c in countries}
     several = _several_countries(places, joint)
     if several is not None:
         return several
-    return _one_country(query, places, joint)
+    res = _one_country(query, places, joint, [w for w in every if w not in places])
+    if by_cue:
+        res.reason = Reason.CURRENT_PLACE
+    return res
+
+
+def _nothing_named(
+    query: Query, mentions: list[Mention], fictional: Sequence[str]
+) -> Resolution | None:
+    """The answer for a text that names no place: junk when it is all web or file
+    addresses, markup or code, or made of ordinary words and handles whose mentions
+    are all ordinary words ("under my desk"); fictional, or no match ("Dunmarrow"),
+    when nothing was found."""
+    if query.coordinates:  # a point at sea is a place nobody lives: unmatched
+        pass
+    elif code_text(query) or (all(m.prior < JUNK_PRIOR for m in mentions) and ordinary_text(query)):
+        return Resolution(Status.NOT_A_PLACE, Reason.JUNK, confidence=1.0, score=1.0)
+    if not mentions:
+        if fictional:
+            return Resolution(Status.NOT_A_PLACE, Reason.FICTIONAL, confidence=1.0, score=1.0)
+        return Resolution(Status.UNMATCHED, Reason.NO_MATCH)
+    return None
+
+
+def _weighed_places(mentions: list[Mention]) -> tuple[list[Weighed], Reason | None]:
+    """The places of the text, weighed; or why there is none (world region, no match)."""
+    groups, qualifiers = group_places(mentions)
+    located = [g for g in groups if not g.is_region()]
+    if not located and not qualifiers:
+        return [], Reason.WORLD_REGION
+    if not located:
+        located, qualifiers = [Group(qualifiers)], []
+    places = [w for w in (weigh(g, qualifiers) for g in located) if w.dist]
+    return places, None if places else Reason.NO_MATCH
+
+
+def _explained(name: str, places: Sequence[Weighed]) -> bool:
+    """Whether a real place explains the fictional name's words: a place confirmed by
+    a container that fits it ("Avalon, NJ") or a sizeable one ("Atlantis" is also a
+    Honduran department, but "Atlantis" alone is found before the cascade)."""
+    words = set(name.split())
+    for w in places:
+        if not any(words & set(m.text.split()) for m in w.group.mentions):
+            continue
+        confirmed = len(w.group.mentions) > 1 or w.qualifiers
+        if confirmed or max(r.place.pop for r in w.readings()) >= STRAY_PLACE_POP:
+            return True
+    return False
+
+
+def current_places(
+    places: list[Weighed], roles: Mapping[tuple[int, int, str], str]
+) -> tuple[list[Weighed], bool]:
+    """The places cue words mark as current ("from Tamale, living in Hamburg",
+    "Kampala → Berlin"), and whether the cues decided anything. Without a word that
+    marks one place as current every place stays, and places in several countries
+    go to review."""
+    if len(places) < 2:
+        return places, False
+    marks = []
+    for w in places:
+        first = w.group.mentions[0]
+        marks.append(roles.get((first.part, first.start, first.text), ""))
+    if "current" not in marks:
+        return places, False  # "from Chennai, working in Singapore" says no more
+    kept = [w for w, r in zip(places, marks, strict=True) if r == "current"]
+    if len(kept) == len(places):
+        return places, False
+    return kept, True
 
 
 def _several_countries(places: list[Weighed], joint: dict[str, float]) -> Resolution | None:
@@ -376,7 +469,9 @@ def _several_countries(places: list[Weighed], joint: dict[str, float]) -> Resolu
     )
 
 
-def _one_country(query: Query, places: list[Weighed], joint: dict[str, float]) -> Resolution:
+def _one_country(
+    query: Query, places: list[Weighed], joint: dict[str, float], former: Sequence[Weighed] = ()
+) -> Resolution:
     total = sum(joint.values())
     top = _top(joint)
     evidence = {
@@ -386,7 +481,7 @@ def _one_country(query: Query, places: list[Weighed], joint: dict[str, float]) -
     }
     res = Resolution(Status.MATCHED, Reason.CITY, country=top, evidence=evidence)
     fill_in(res, places)
-    res.score = evidence_score(joint[top] / total, top, query, places)
+    res.score = evidence_score(joint[top] / total, top, query, places, former)
     every = [r for w in places for r in w.readings()]
     res.candidates = [candidate(c, every, evidence[c]) for c in evidence]
     return res
@@ -516,6 +611,10 @@ def _reason(
     leaves the evidence spread over several countries."""
     if len(places) > 1:
         reason = Reason.SAME_COUNTRY_PLACES
+    elif "coordinates" in found.sources:
+        reason = Reason.COORDINATES
+    elif "time_zone" in found.sources:
+        reason = Reason.TIME_ZONE
     elif "fuzzy" in found.sources:
         reason = Reason.SPELLING
     elif "flag" in found.sources and not found.points:
@@ -602,14 +701,19 @@ def _city_or_subdivision(best: Reading, subs: list[Reading]) -> tuple[Reading | 
 
 
 # -- the evidence score -------------------------------------------------------
-def evidence_score(p: float, country: str, query: Query, places: list[Weighed]) -> float:
+def evidence_score(
+    p: float, country: str, query: Query, places: list[Weighed], former: Sequence[Weighed] = ()
+) -> float:
     """Uncalibrated evidence score in (0, 1): the country's joint share ``p``,
-    lowered for typos, unexplained words, a bare small town and a nationality word."""
+    lowered for typos, unexplained words, a bare small town, a nationality word and
+    a place that may be an ordinary word. Places the text marks as ``former``
+    explain their words."""
     readings = [r for w in places for r in w.readings() if r.place.cc == country]
     score = _spelling(p, readings)
-    score = _unexplained(score, query, places)
+    score = _unexplained(score, query, [*places, *former])
     score = _bare_town(score, readings, places)
     score = _only_nationality(score, readings)
+    score *= min(1.0, min(strength(w) for w in places) / PRIOR_FULL)
     return max(SCORE_FLOOR, min(SCORE_CEILING, score))
 
 
@@ -622,18 +726,30 @@ def _spelling(score: float, readings: list[Reading]) -> float:
 
 def _unexplained(score: float, query: Query, places: list[Weighed]) -> float:
     """Words nobody explained lower the score. Within a part that names the place, a
-    stray word is suspicious; a whole part nobody explained (a street line, an
-    aside) much less so."""
+    stray word is suspicious, an ordinary word of the text's language ("Bergen and
+    proud of it") much less so; a whole part nobody explained (a street line, an
+    aside) less again."""
     named = [m for w in places for m in w.group.mentions]
     parts_with = {m.part for m in named}
+    lang = -1
     for pi, part in enumerate(query.parts):
         words = [t.key for t in part.tokens if t.key not in STOPWORDS]
         if pi in parts_with:
-            used = sum(len(m.text.split()) for m in named if m.part == pi)
-            score *= STRAY_WORD_FACTOR ** min(max(0, len(words) - used), MAX_STRAY_WORDS)
+            used = {w for m in named if m.part == pi for w in m.text.split()}
+            stray = [w for w in words if w not in used]
+            if stray and lang < 0:
+                lang = text_language(t.orig for p in query.parts for t in p.tokens)
+            score *= STRAY_WORD_FACTOR ** min(_stray_count(stray, lang), MAX_STRAY_WORDS)
         elif words and not part.street:
             score *= LOOSE_PART_FACTOR
     return score
+
+
+def _stray_count(stray: list[str], lang: int) -> float:
+    """Unexplained words, an ordinary word of the text's language counting as a share."""
+    return sum(
+        ORDINARY_STRAY_WEIGHT if word_zipf(w)[lang] >= ORDINARY_WORD_ZIPF else 1.0 for w in stray
+    )
 
 
 def _bare_town(score: float, readings: list[Reading], places: list[Weighed]) -> float:

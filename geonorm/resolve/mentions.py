@@ -12,25 +12,49 @@ Three steps, in order (``gather``):
 
 from __future__ import annotations
 
+import math
+import re
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import replace
+from functools import lru_cache
 
-from .normalize import Part, Query
+from .normalize import Part, Query, fold
 from .stages import FuzzyMatcher, Mention, Reading, Span
-from .tables import STOPWORDS
+from .tables import PLACE_CUES, STOPWORDS
 from .tuning import (
     CITY_BESIDE_AREA_POP,
     CITY_BESIDE_COUNTRY_POP,
+    FAME_TYPICAL,
     FIRM_PLACE_POP,
     FIRM_TOWN_POP,
     HAMLET_POP,
+    HOME_LANGUAGE_BONUS,
+    HOME_PLACE_POP,
+    INTRODUCED_RENOWN,
     MAIN_NAME_OVER_TRANSLATION_POP,
     MAIN_NAME_POP,
+    ORDINARY_CONTEXT,
+    ORDINARY_SCALE,
+    ORDINARY_WORD_ZIPF,
+    ORDINARY_ZIPF_BASE,
+    ORDINARY_ZIPF_SLOPE,
     RESPELL_ADVANTAGE,
+    RUNNING_TEXT_SHIFT,
     VARIANT_DEMOTION,
 )
 
-__all__ = ["gather", "merge_by_span", "prune"]
+__all__ = [
+    "LANGUAGES",
+    "code_text",
+    "cue_roles",
+    "gather",
+    "merge_by_span",
+    "ordinary_text",
+    "place_prior",
+    "prune",
+    "text_language",
+    "word_zipf",
+]
 
 # Where a mention sits: (part, first word, text).
 SpanKey = tuple[int, int, str]
@@ -64,7 +88,8 @@ def gather(
             weak.add(pi)
             respelt = [m for m in respelt if m.part != pi] + [whole]
     _replace_weak(by_span, respelt, weak)
-    return prune(whole_text + sorted(by_span.values(), key=lambda m: (m.part, m.start)))
+    kept = prune(whole_text + sorted(by_span.values(), key=lambda m: (m.part, m.start)))
+    return weigh_words(query, kept)
 
 
 def merge_by_span(mentions: Iterable[Mention]) -> dict[SpanKey, Mention]:
@@ -281,3 +306,331 @@ def prune(mentions: list[Mention]) -> list[Mention]:
         if readings:
             out.append(replace(m, readings=readings))
     return out
+
+
+# -- the word prior -----------------------------------------------------------
+# Languages whose ordinary words are told apart from place names (wordfreq's small
+# lists of the languages the noise phrases cover most); the first is the default.
+LANGUAGES = ("en", "es", "pt", "fr", "de", "it", "nl")
+# Words that make a phrase a description ("the valley"), not a name.
+_ARTICLES = frozenset({"the", "a", "an"})
+# Codes: trusted only when typed in capitals.
+_CODE_ORIGINS = frozenset({"code2", "code3", "postal", "sub_code", "abbreviation"})
+# Name origins that are curated or gated by casing elsewhere: never ordinary words.
+_TRUSTED_ORIGINS = frozenset(
+    {"alias", "flag", "postcode", "region", "code2", "code3", "postal", "sub_code", "abbreviation"}
+)
+
+
+@lru_cache(maxsize=len(LANGUAGES))
+def _frequencies(lang: str) -> dict[str, float]:
+    from wordfreq import get_frequency_dict
+
+    return get_frequency_dict(lang, wordlist="small")
+
+
+@lru_cache(maxsize=100_000)
+def word_zipf(word: str) -> tuple[float, ...]:
+    """How common ``word`` (as typed, any case) is in each of ``LANGUAGES``, on the
+    Zipf scale (log10 of uses per billion words; 0 for words outside the lists)."""
+    key = word.casefold().strip(".'-")
+    out = []
+    for lang in LANGUAGES:
+        f = _frequencies(lang).get(key, 0.0)
+        out.append(math.log10(f) + 9 if f > 0 else 0.0)
+    return tuple(out)
+
+
+def text_language(words: Iterable[str]) -> int:
+    """The index in ``LANGUAGES`` of the language whose ordinary words ``words`` are
+    most likely to be (English when nothing tells)."""
+    totals = [0.0] * len(LANGUAGES)
+    for w in words:
+        for i, z in enumerate(word_zipf(w)):
+            totals[i] += z
+    return max(range(len(LANGUAGES)), key=lambda i: (totals[i], -i))
+
+
+def _typed_words(query: Query, m: Mention) -> list[str]:
+    """The words of mention ``m`` as typed (for a whole-text mention, the text's)."""
+    if m.part < 0 or m.part >= len(query.parts):
+        return []
+    tokens = query.parts[m.part].tokens
+    n = len(m.text.split())
+    typed = [t.orig for t in tokens[m.start : m.start + n]]
+    return typed or m.text.split()
+
+
+def _content_zipf(words: list[str], lang: int) -> float:
+    """How ordinary a phrase is: as ordinary as its rarest content word."""
+    content = [w for w in words if w.casefold() not in STOPWORDS | _ARTICLES] or words
+    return min((word_zipf(w)[lang] for w in content), default=0.0)
+
+
+def _renown(readings: Iterable[Reading]) -> float:
+    """How much the places a mention can name are written about: the heaviest reading,
+    a city's weight scaled by how many names GeoNames knows it by."""
+    best = 0.0
+    for r in readings:
+        if r.origin == "lower_sub":
+            continue  # a district's name does not make its region famous ("Reading")
+        w = r.weight
+        if r.place.kind == "city":
+            w *= (1 + r.place.fame) / (1 + FAME_TYPICAL)
+        best = max(best, w)
+    return best
+
+
+@lru_cache(maxsize=512)
+def _official_languages(cc: str) -> frozenset[str]:
+    """The languages of country ``cc``, official or de facto (CLDR, via babel)."""
+    from babel.languages import get_official_languages
+
+    return frozenset(get_official_languages(cc, de_facto=True))
+
+
+def _at_home(readings: Iterable[Reading], lang: str) -> bool:
+    """Whether the heaviest reading is a sizeable place where ``lang`` is spoken: such
+    places are written about most in their own language ("Paris" is commoner in
+    French). English, written everywhere, gets no such allowance."""
+    best = max(readings, key=lambda r: r.weight, default=None)
+    return (
+        best is not None
+        and best.place.pop >= HOME_PLACE_POP
+        and lang in _official_languages(best.place.cc)
+    )
+
+
+def _trusted(m: Mention, typed: list[str]) -> bool:
+    """Flags, postcodes, curated names and codes typed in capitals are never ordinary
+    words ("man" may be the Manitoba abbreviation, "MAN" is)."""
+    if m.source in ("flag", "postcode"):
+        return True
+    capitals = all(w.replace(".", "").isupper() for w in typed)
+    return any(
+        r.origin in _TRUSTED_ORIGINS and (capitals or r.origin not in _CODE_ORIGINS)
+        for r in m.readings
+    )
+
+
+def _named_with_article(m: Mention) -> bool:
+    """Whether the place the mention most likely names carries the article in its own
+    name ("The Hague", "The Gambia")."""
+    best = max(m.readings, key=lambda r: r.weight, default=None)
+    return best is not None and fold(best.place.name).split(" ", 1)[0] == m.text.split()[0]
+
+
+def _context(query: Query, m: Mention, covered: set[Word], introduced: bool = False) -> str:
+    """How the mention sits in the text: "alone" (the first part names only places
+    once noise phrases such as "based in" are removed), "aside" (so does a later
+    part: "Quito, man"), "lead" (it opens the text, words follow: people write the
+    place first), "running" (among words that name nothing, or led by an article:
+    "the valley"). Case is not read: texts that
+    differ only in case share one answer."""
+    words = m.text.split()
+    if introduced:
+        return "alone"
+    if len(words) > 1 and words[0] in _ARTICLES and not _named_with_article(m):
+        return "running"
+    if not 0 <= m.part < len(query.parts):
+        return "alone"
+    lead = m.part == 0 and m.start == 0
+    part = query.parts[m.part]
+    tokens = part.tokens
+    before = tokens[m.start - 1].key if m.start > 0 else part.full_key.split(" ", 1)[0]
+    if before in _ARTICLES and before not in words:
+        return "running"
+    around = any(
+        (m.part, i) not in covered and t.key not in STOPWORDS and any(c.isalnum() for c in t.key)
+        for i, t in enumerate(tokens)
+    )
+    if not around:
+        return "alone" if m.part == 0 else "aside"
+    return "lead" if lead else "running"
+
+
+def place_prior(
+    query: Query, m: Mention, lang: int, covered: set[Word], introduced: bool = False
+) -> float:
+    """How likely mention ``m`` is meant as a place rather than an ordinary word.
+
+    A word's chance of being an ordinary word grows with how common it is in the
+    text's language, beyond what the size and fame of the places it can name
+    explain ("Paris" is common because the city is famous; "city" and "desk" are
+    common as words). It counts most in running text ("the city of dreams"), less
+    at the head of the text ("Split is nice in summer") and little when a part is
+    nothing but the name or a word such as "in" or "près de" introduces a
+    well-known place: a person who types one word into a location field most likely
+    means a place.
+    """
+    typed = _typed_words(query, m)
+    if _trusted(m, typed):
+        return 1.0
+    z = _content_zipf(typed, lang)
+    if z <= 0:
+        return 1.0
+    renown = _renown(m.readings)
+    expected = ORDINARY_ZIPF_BASE + ORDINARY_ZIPF_SLOPE * math.log10(max(renown, 1.0))
+    if lang and _at_home(m.readings, LANGUAGES[lang]):
+        expected += HOME_LANGUAGE_BONUS
+    context = _context(query, m, covered, introduced and renown >= INTRODUCED_RENOWN)
+    if context == "running":
+        expected -= RUNNING_TEXT_SHIFT
+    ordinary = 1.0 / (1.0 + math.exp(-(z - expected) / ORDINARY_SCALE))
+    return 1.0 - ordinary * ORDINARY_CONTEXT[context]
+
+
+def _free_words(query: Query, mentions: Sequence[Mention]) -> list[str]:
+    """The typed words of the text outside its mentions (noise words included)."""
+    inside = {w for m in mentions for w in m.text.split()}
+    return [w for p in query.parts for w in p.full_key.split() if w not in inside]
+
+
+def _words_of_mentions(mentions: Iterable[Mention]) -> set[Word]:
+    return {(m.part, m.start + i) for m in mentions for i in range(len(m.text.split()))}
+
+
+def _may_be_ordinary(query: Query, m: Mention) -> bool:
+    """Whether the mention could be an ordinary word at all: not trusted, and common
+    enough in some language, against the renown of its places, to matter (most place
+    names are in no list; "Berlin" is common, but the city more so)."""
+    typed = _typed_words(query, m)
+    if _trusted(m, typed):
+        return False
+    content = [w for w in typed if w.casefold() not in STOPWORDS | _ARTICLES] or typed
+    z = min((max(word_zipf(w)) for w in content), default=0.0)
+    if z <= 0:
+        return False
+    renown = ORDINARY_ZIPF_BASE + ORDINARY_ZIPF_SLOPE * math.log10(max(_renown(m.readings), 1.0))
+    return z - (renown - RUNNING_TEXT_SHIFT) > -4 * ORDINARY_SCALE
+
+
+def weigh_words(query: Query, mentions: list[Mention]) -> list[Mention]:
+    """Each mention with its ``prior`` of naming a place (``place_prior``).
+
+    Two passes: first every other mention counts as words around a mention; then
+    only the mentions that are likely places do ("Paris & Nice" names two places;
+    in "Toronto born and raised", "born" stands in running text).
+    """
+    todo = [i for i, m in enumerate(mentions) if _may_be_ordinary(query, m)]
+    if not todo:
+        return mentions  # every prior stays 1
+    lang = text_language(_free_words(query, mentions))
+    gaps = _gaps(query, mentions)
+    keys = [(m.part, m.start, m.text) for m in mentions]
+    introduced = [k in gaps and _role(*gaps[k]) != "" for k in keys]
+    priors = [1.0] * len(mentions)
+    for i in todo:
+        priors[i] = place_prior(
+            query, mentions[i], lang, _words_of_mentions([mentions[i]]), introduced[i]
+        )
+    if len(mentions) > 1:
+        likely = _words_of_mentions(m for m, p in zip(mentions, priors, strict=True) if p >= 0.5)
+        for i in todo:
+            own = _words_of_mentions([mentions[i]])
+            priors[i] = place_prior(query, mentions[i], lang, likely | own, introduced[i])
+    return [
+        replace(m, prior=round(p, 4)) if p < 1.0 else m
+        for m, p in zip(mentions, priors, strict=True)
+    ]
+
+
+# Tokens that are no words of a language: web and file addresses, markup and code
+# (certainly no place), handles and hashtags (a name may follow the sign).
+_CODE_TOKEN = re.compile(
+    r"^(?:https?://\S*|www\.\S*|~?/\S*|\.{1,2}/\S*|[a-z]:\\\S*|<[^>]*>?|\S*</?\w+>"
+    r"|[\w-]+(?:\.[\w-]+)*\.(?:com|org|net|io|dev|app|py|js|ts|html?|txt|exe|sh|json|csv)"
+    r"|\S*[{};$\\`]\S*|\S*\(\)\S*)$"
+)
+_HANDLE = re.compile(r"^[@#]\w+$")
+_LETTERS = re.compile(r"[^\W\d_]+")
+
+
+def code_text(query: Query) -> bool:
+    """Whether every token of the text is a web or file address, markup or code."""
+    tokens = query.key.split()
+    return bool(tokens) and all(_CODE_TOKEN.match(t) for t in tokens)
+
+
+def ordinary_text(query: Query) -> bool:
+    """Whether the text has no word that could name an unknown place: only ordinary
+    words of its language ("under my desk"), handles, web and file addresses, markup
+    and code. A rare word (a capitalised name the index does not know), a street
+    line or a postcode says no."""
+    if query.postcodes or any(p.street for p in query.parts):
+        return False  # an address without a city is a place the index does not know
+    words: list[str] = []
+    for token in query.key.split():
+        if not (_CODE_TOKEN.match(token) or _HANDLE.match(token)):
+            words.extend(_LETTERS.findall(token))
+    if not words:
+        return bool(query.key.strip())
+    lang = text_language(words)
+    return all(
+        w in STOPWORDS or len(w) == 1 or word_zipf(w)[lang] >= ORDINARY_WORD_ZIPF for w in words
+    )
+
+
+# -- which place is current ---------------------------------------------------
+# Arrows between places point from the former to the current one.
+_ARROW = re.compile(r"\s*(?:[→⇒⇨⇢↦⟶⟹➔➙➛➜➝➞➟➠➡➢➣➤⮕]|=>|->|>)\s*")
+_NON_WORD = re.compile(r"[^\w→]+")
+
+
+def _cue_table(position: str) -> tuple[dict[str, str], int]:
+    """Cue phrases of one position → role, and the longest phrase in words."""
+    cues: dict[str, str] = {}
+    for phrase, role, pos in PLACE_CUES:
+        if pos == position:
+            cues.setdefault(" ".join(_NON_WORD.sub(" ", fold(phrase)).split()), role)
+    return cues, max((len(p.split()) for p in cues), default=0)
+
+
+_CUES_BEFORE, _LONGEST_BEFORE = _cue_table("before")
+_CUES_AFTER, _LONGEST_AFTER = _cue_table("after")
+
+
+@lru_cache(maxsize=4096)
+def _role(before: str, after: str) -> str:
+    """The role a place takes from the words just before and just after it: current,
+    former, place (a word that introduces a place: "in", "près de") or ''. The
+    longest cue phrase wins."""
+    words = _NON_WORD.sub(" ", before[-80:]).split()
+    if words and words[-1] == "→":
+        return "current"
+    for n in range(min(_LONGEST_BEFORE, len(words)), 0, -1):
+        role = _CUES_BEFORE.get(" ".join(words[-n:]))
+        if role:
+            return role
+    words = _NON_WORD.sub(" ", after[:80]).split()
+    for n in range(min(_LONGEST_AFTER, len(words)), 0, -1):
+        role = _CUES_AFTER.get(" ".join(words[:n]))
+        if role:
+            return role
+    return ""
+
+
+def _gaps(query: Query, mentions: Sequence[Mention]) -> dict[SpanKey, tuple[str, str]]:
+    """For each mention found in the text, the text before it and after it, folded;
+    keyed by (part, start, text)."""
+    text = fold(_ARROW.sub(" → ", query.key))
+    found: list[tuple[SpanKey, int, int]] = []
+    cursor = 0
+    for m in sorted((m for m in mentions if m.part >= 0), key=lambda m: (m.part, m.start)):
+        at = text.find(m.text, cursor)
+        if at >= 0:
+            found.append(((m.part, m.start, m.text), at, at + len(m.text)))
+            cursor = at + len(m.text)
+    return {key: (text[:start], text[end:]) for key, start, end in found}
+
+
+def cue_roles(query: Query, mentions: Sequence[Mention]) -> dict[SpanKey, str]:
+    """For each mention, "current" or "former" when cue words say so ("ex-Medellín,
+    now Madrid", "Kampala → Berlin", "ahora en Quito (antes Lima)"); keyed by
+    (part, start, text). Mentions without such a cue are left out."""
+    roles = {}
+    for key, (before, after) in _gaps(query, mentions).items():
+        role = _role(before, after)
+        if role in ("current", "former"):
+            roles[key] = role
+    return roles

@@ -5,9 +5,11 @@ gives the same key as ``normalize(s)``. It keeps the original text next to the
 folded forms, because casing carries meaning (``CAN`` is a country code,
 ``can`` is a verb).
 
-Steps: Unicode NFKC, flags to ISO codes, other emoji and symbols dropped,
-casefold, accent folding for Latin letters, split into parts on hard
-separators, noise phrases removed per part, postcodes and street words
+Steps: mojibake repaired (UTF-8 read as Latin-1 or Windows-1252 upstream),
+Unicode NFKC, coordinates, time-zone names and UTC offsets taken out, flags
+to ISO codes, other emoji and symbols dropped, casefold, accent folding for
+Latin letters, split into parts on hard separators (Latin, Arabic and CJK
+punctuation), noise phrases removed per part, postcodes and street words
 recognised.
 """
 
@@ -18,9 +20,21 @@ import unicodedata
 from dataclasses import dataclass
 from functools import lru_cache
 
+from .coordinates import find_coordinates
 from .tables import POSTCODE_FORMATS, STREET_SUFFIX_ONLY, STREET_WORDS
+from .timezones import find_offsets, find_zones
+from .tuning import MAX_TEXT
 
-__all__ = ["NoisePhrases", "Part", "Query", "Token", "fold", "normalize", "normalize_key"]
+__all__ = [
+    "NoisePhrases",
+    "Part",
+    "Query",
+    "Token",
+    "fold",
+    "normalize",
+    "normalize_key",
+    "repair_mojibake",
+]
 
 # Regional indicator symbols U+1F1E6..U+1F1FF map to A..Z (Unicode TR51, flags).
 _RI_BASE = 0x1F1E6
@@ -53,8 +67,25 @@ _SPECIAL_FOLD = {
     "´": "'",
 }
 
-# Hard separators: always split a string into parts.
-_HARD_SEP = re.compile(r"\s*(?:[,/|;·•()\[\]{}<>\n\t]|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|\bvia\b)\s*")
+# The Ethiopic wordspace (፡) separates words, like a space: a typed "አዲስ፡አበባ" is
+# read as "አዲስ አበባ", the usual form (CLDR's Ge'ez names, written with it, swap North
+# and South Korea; they stay apart in the index).
+_WORD_SPACES = str.maketrans({"\u1361": " "})
+# Hard separators: always split a string into parts. Besides Latin punctuation, the
+# Arabic comma, semicolon and full stop (، ؛ ۔), the ideographic comma and full stop
+# (、 。) and the katakana middle dot (・), the Devanagari danda (। ॥), the Ethiopic
+# comma, full stop and semicolon (፣ ። ፤) and the Armenian full stop (։); full-width
+# forms (，；：／（）) arrive here as their ASCII twins after NFKC, so the colon is one
+# too ("名古屋：日本", "Berlin:Germany"), except after an Indic letter, where it stands
+# for the visarga ("जर्मनीदेश:"), and before a space, where it ends a label that the
+# noise phrases remove ("Location: Berlin"). A middle dot before a Shavian letter is
+# the namer dot that starts a name, not a separator. A name written with a separator
+# inside ("ボスニア・ヘルツェゴビナ") is still found: the segmenter looks the whole
+# text up first.
+_HARD_SEP = re.compile(
+    r"\s*(?:[,/|;•()\[\]{}<>\n\t،؛۔、。・।॥፣።፤։]|(?<![\u0900-\u0dff]):(?!\s)"
+    r"|·(?![\U00010450-\U0001047f])|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|\bvia\b)\s*"
+)
 _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _WS = re.compile(r"\s+")
 _ACRONYM = re.compile(r"(?<![\w.])(?:\w\.){2,}(?![\w])|(?<![\w.])(?:\w\.\w)(?![\w.])")
@@ -83,7 +114,11 @@ def fold(text: str) -> str:
     or Devanagari marks would merge distinct names.
     """
     text = unicodedata.normalize("NFKC", text).casefold()
-    text = text.replace("\u200c", "").replace("\u200d", "")  # zero-width (non-)joiners join
+    # Zero-width (non-)joiners join; a zero-width space only marks a word boundary in
+    # scripts written without spaces (Khmer, Thai), inside names too ("កោះ\u200bខូក"),
+    # and the Mongolian vowel separator is part of its word.
+    text = text.replace("\u200c", "").replace("\u200d", "")
+    text = text.replace("\u200b", "").replace("\u180e", "")
     text = "".join(_fold_char(c) for c in text)
     # Dotted acronyms (L.A., U.K., N.L.) keep their dots: "l.a." is not "la".
     text = _ACRONYM.sub(lambda m: m.group(0).replace(".", "\x00"), text)
@@ -92,7 +127,61 @@ def fold(text: str) -> str:
     return _WS.sub(" ", text).strip(" -")
 
 
-_KEPT_SYMBOLS = frozenset("|+<>")  # separators, split on later
+def _continuation_chars() -> str:
+    """The characters a UTF-8 continuation byte (0x80–0xBF) becomes when read as
+    Latin-1 or as Windows-1252."""
+    chars = set()
+    for b in range(0x80, 0xC0):
+        chars.add(chr(b))
+        try:
+            chars.add(bytes([b]).decode("cp1252"))
+        except UnicodeDecodeError:
+            continue
+    return "".join(sorted(chars))
+
+
+# Typical mojibake: UTF-8 read as Latin-1 or Windows-1252 ("GÃ¶teborg", "ÐœÐ¾ÑÐºÐ²Ð°").
+# A two-byte sequence's lead byte 0xC2–0xDE reads as a capital letter (Â … Þ; × and
+# ß left out, they have no lower case) and is followed by a continuation byte's
+# character. Casefolded text has no such capital, so a key is never repaired twice.
+_MOJIBAKE = re.compile(rf"[\u00c2-\u00d6\u00d8-\u00de][{re.escape(_continuation_chars())}]")
+
+
+def repair_mojibake(text: str) -> str:
+    """Undo UTF-8 read as Latin-1 or Windows-1252 upstream, only when that is clear.
+
+    Text is repaired only when it holds a typical mojibake sequence and ``ftfy``'s
+    ``fix_encoding`` undoes it by re-encoding and decoding alone (no partial fixes),
+    leaving no such sequence behind; anything else is returned as it is.
+    """
+    if not _MOJIBAKE.search(text):
+        return text
+    import ftfy  # only for the rare text that needs it
+
+    fixed, steps = ftfy.fix_encoding_and_explain(text)
+    if fixed == text or not steps:
+        return _reread(text)
+    if _MOJIBAKE.search(fixed) or any(step[0] not in ("encode", "decode") for step in steps):
+        return text
+    return fixed
+
+
+def _reread(text: str) -> str:
+    """The text re-read as UTF-8, when its Windows-1252 or Latin-1 bytes are valid UTF-8
+    from end to end ("Ã…rhus", which ftfy leaves alone for the ellipsis in it); text
+    typed in those encodings almost never is. Otherwise the text as it is."""
+    for codec in ("cp1252", "latin-1"):
+        try:
+            fixed = text.encode(codec).decode("utf-8")
+        except UnicodeError:
+            continue
+        if fixed != text and not _MOJIBAKE.search(fixed):
+            return fixed
+    return text
+
+
+# Separators, split on later; and the Sindhi "and" (۽), a word inside names.
+_KEPT_SYMBOLS = frozenset("|+<>\u06fd")
 
 
 def _is_dropped_symbol(ch: str) -> bool:
@@ -170,6 +259,10 @@ class Query:
     flags: tuple[str, ...] = ()  # ISO codes from flag emoji
     postcodes: tuple[str, ...] = ()
     has_letters: bool = False
+    # Taken out of the text before it is split into parts:
+    coordinates: tuple[tuple[float, float], ...] = ()  # (latitude, longitude) pairs
+    zones: tuple[str, ...] = ()  # IANA time-zone names ("Africa/Lagos"), see timezones.py
+    offsets: tuple[str, ...] = ()  # UTC offsets and Etc/ zones ("UTC+2"): no place
 
 
 class NoisePhrases:
@@ -205,6 +298,7 @@ _EMPTY_NOISE = NoisePhrases([], [], [])
 
 def _clean_text(raw: str) -> tuple[str, list[str]]:
     """Flags out (returned as ISO codes), emoji and stray symbols to spaces."""
+    raw = raw.replace("\u200b", "").replace("\u180e", "").translate(_WORD_SPACES)  # see fold
     text, flags = extract_flags(raw)
     text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
     for ch in '#@"!?*~':
@@ -212,35 +306,74 @@ def _clean_text(raw: str) -> tuple[str, list[str]]:
     return text, flags
 
 
-_SHORT_CAPS = re.compile(r"\b[A-Z]{2,3}\b")
+_SHORT_CAPS = re.compile(r"(\b[A-Z]{2,3}\b)")  # a capture group: split keeps the words
+# A window of a long cell ends before an ASCII character that is not part of a word (a
+# space, a comma): NFKC, casefolding and the capitals rule never reach across one.
+_WINDOW_END = re.compile(r"[\x00-\x2f\x3a-\x40\x5b-\x5e\x60\x7b-\x7f]")
+_WINDOW = 4 * MAX_TEXT  # raw characters folded at a time (from memory: a few keys' worth)
+_PASSES = 4  # folding a key again settles within one or two passes (measured on fuzzed text)
 
 
-@lru_cache(maxsize=500_000)
+def _fold_window(raw: str) -> str:
+    """NFKC, zero-width joiners out, casefolded except two- and three-letter capitals."""
+    if raw.isascii():  # the common case: NFKC changes nothing, casefold is lower
+        words = _SHORT_CAPS.split(raw)
+        return "".join(w if i % 2 else w.lower() for i, w in enumerate(words))
+    text = unicodedata.normalize("NFKC", repair_mojibake(raw))
+    text = text.replace("\u200c", "").replace("\u200d", "")
+    words = _SHORT_CAPS.split(text)
+    # NFKC again after casefold, which may decompose.
+    return "".join(
+        w if i % 2 else unicodedata.normalize("NFKC", w.casefold()) for i, w in enumerate(words)
+    )
+
+
+def _key_pass(raw: str) -> str:
+    """Fold ``raw`` window by window and collapse whitespace, up to ``MAX_TEXT`` characters.
+
+    Reading stops once the key is full, so a pasted document costs no more than a line.
+    """
+    key, start = "", 0
+    while start < len(raw) and len(key) < MAX_TEXT:
+        found = _WINDOW_END.search(raw, start + _WINDOW)
+        end = found.start() if found else len(raw)
+        key = _WS.sub(" ", key + _fold_window(raw[start:end])).lstrip()
+        start = end
+    return key[:MAX_TEXT].rstrip()
+
+
+def _settled_key(raw: str) -> str:
+    key = _key_pass(raw)
+    if raw.isascii() and len(raw) <= MAX_TEXT:
+        return key  # ASCII folding keeps every word's bounds: one pass is final
+    # Folding can move a word boundary (a combining mark composes, U+0345 becomes a
+    # letter) and the cut can split a word: fold again until nothing changes.
+    for _ in range(_PASSES):
+        again = _key_pass(key)
+        if again == key:
+            break
+        key = again
+    return key
+
+
+_cached_key = lru_cache(maxsize=500_000)(_settled_key)
+
+
 def normalize_key(raw: str) -> str:
     """The canonical form of a raw value; everything the resolver reads comes from it.
 
-    Unicode NFKC, zero-width joiners removed, casefolded, whitespace collapsed.
+    Mojibake repaired (``repair_mojibake``), Unicode NFKC, zero-width joiners removed,
+    casefolded, whitespace collapsed, and
+    at most ``MAX_TEXT`` (500) characters: the rest of a longer cell is not read.
     Two things survive that matter for reading: accents (Vietnamese "Áo" is
     Austria, "ao" may be Angola's code) and capitals in two- or three-letter
     words ("CAN" is a country code, "can" a verb). Case and spacing variants
-    share a key; the resolver's answer is a function of the key alone.
+    share a key; the resolver's answer is a function of the key alone. The key
+    is its own key: ``normalize_key(normalize_key(s)) == normalize_key(s)``.
     """
-    if raw.isascii():  # the common case: NFKC changes nothing, casefold is lower
-        text = raw
-        caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
-        folded = text.lower()
-    else:
-        text = unicodedata.normalize("NFKC", raw).replace("\u200c", "").replace("\u200d", "")
-        caps = {m.start(): m.group(0) for m in _SHORT_CAPS.finditer(text)}
-        folded = unicodedata.normalize(
-            "NFKC", text.casefold()
-        )  # NFKC again: casefold may decompose
-    if caps and len(folded) == len(text):
-        chars = list(folded)
-        for start, word in caps.items():
-            chars[start : start + len(word)] = word
-        folded = "".join(chars)
-    return _WS.sub(" ", folded).strip()
+    if len(raw) > _WINDOW:  # a very long cell: computed from its head, not memoised
+        return _settled_key(raw)
+    return _cached_key(raw)
 
 
 def _is_street(words: list[str]) -> bool:
@@ -296,7 +429,10 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     if not isinstance(raw, str):
         raw = "" if raw is None else str(raw)
     key = normalize_key(raw)
-    text, flags = _clean_text(key)
+    coordinates, rest = find_coordinates(key)
+    zones, rest = find_zones(rest)
+    offsets, rest = find_offsets(rest)
+    text, flags = _clean_text(rest)
     noise = noise or _EMPTY_NOISE
     parts: list[Part] = []
     postcodes: list[str] = []
@@ -306,4 +442,15 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
             if part is not None:
                 parts.append(part)
     has_letters = any(c.isalpha() for c in key) or bool(flags)
-    return Query(raw, key, fold(text), tuple(parts), tuple(flags), tuple(postcodes), has_letters)
+    return Query(
+        raw,
+        key,
+        fold(text),
+        tuple(parts),
+        tuple(flags),
+        tuple(postcodes),
+        has_letters,
+        tuple(coordinates),
+        tuple(z.name for z in zones if not z.offset),
+        tuple(offsets) + tuple(z.name for z in zones if z.offset),
+    )

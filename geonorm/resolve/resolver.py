@@ -20,11 +20,13 @@ import zlib
 
 from .calibration import Calibration, load_calibration
 from .decide import decide
+from .evidence import CoordinateStage, TimeZoneStage
 from .index import PlaceIndex, load_index
 from .mentions import gather
 from .normalize import NoisePhrases, Query, normalize, normalize_key
 from .resolution import Reason, Resolution, Status, settle
 from .stages import (
+    AbbreviationStage,
     CityStage,
     CountryStage,
     FlagStage,
@@ -36,12 +38,12 @@ from .stages import (
     Stage,
     SubdivisionStage,
 )
-from .tuning import DEFAULT_ACCEPT, MAX_TEXT
+from .tuning import DEFAULT_ACCEPT
 
 __all__ = ["DEFAULT_ACCEPT", "RESOLVER_VERSION", "Resolver"]
 
 # Bump when answers change, so caches do not serve old answers.
-RESOLVER_VERSION = "1.2"
+RESOLVER_VERSION = "1.4"
 NOT_A_PLACE_REASON = {
     "empty": Reason.EMPTY,
     "placeholder": Reason.PLACEHOLDER,
@@ -87,8 +89,11 @@ class Resolver:
         # The cascade, in order; their mentions are merged by span in this order.
         self.stages: list[Stage] = [
             FlagStage(self.index),
+            CoordinateStage(self.index),
+            TimeZoneStage(self.index),
             PostcodeStage(self.index),
             CountryStage(self.index),
+            AbbreviationStage(self.index),
             SubdivisionStage(self.index),
             CityStage(self.index),
         ]
@@ -116,10 +121,9 @@ class Resolver:
     def resolve(self, raw: object) -> Resolution:
         """Resolve one string. Never raises on any text.
 
-        Only the first ``MAX_TEXT`` characters of a very long cell are read.
+        Only the text's key is read (``normalize_key``), which holds at most
+        ``MAX_TEXT`` characters: the cut is the same for every entry point.
         """
-        if isinstance(raw, str) and len(raw) > MAX_TEXT:
-            raw = raw[:MAX_TEXT]
         query = self.normalize(raw)
         kind = self.not_a_place.classify(query)
         if kind:
@@ -129,10 +133,13 @@ class Resolver:
                 confidence=1.0,
                 score=1.0,
             )
-        res = decide(query, self.mentions(query))
-        res.confidence = (
-            round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
-        )
+        res = decide(query, self.mentions(query), self.not_a_place.fictional_names(query))
+        if res.status is Status.NOT_A_PLACE:
+            res.confidence = 1.0
+        else:
+            res.confidence = (
+                round(self.calibration.apply(res.score, res.reason), 4) if res.country else 0.0
+            )
         return settle(res, self.accept)
 
     def mentions(self, query: Query) -> list[Mention]:

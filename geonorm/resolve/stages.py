@@ -21,10 +21,17 @@ from rapidfuzz.distance import OSA
 
 from .index import NameHit, Place, PlaceIndex
 from .normalize import Part, Query
-from .tables import BARE_POSTAL_COUNTRIES, LOWER_WORD_CODES, STOPWORDS, UNSAFE_ALPHA3
+from .tables import (
+    BARE_POSTAL_COUNTRIES,
+    COUNTRY_ABBREVIATIONS,
+    LOWER_WORD_CODES,
+    STOPWORDS,
+    UNSAFE_ALPHA3,
+)
 from .tuning import FUZZY_MIN_LEN, KIND_WEIGHT, MIN_WEIGHT, ORIGIN_WEIGHT, OTHER_ORIGIN_WEIGHT
 
 __all__ = [
+    "AbbreviationStage",
     "CityStage",
     "CountryStage",
     "FlagStage",
@@ -75,6 +82,9 @@ class Mention:
     start: int
     readings: list[Reading] = field(default_factory=list)
     source: str = "name"  # flag | postcode | name | fuzzy
+    # How likely the stretch is meant as a place at all, not as an ordinary word
+    # ("city" in "the city of dreams"); set by ``mentions.gather``.
+    prior: float = 1.0
 
     @property
     def is_point(self) -> bool:
@@ -145,22 +155,32 @@ class Segmenter:
         return out
 
     def _part_spans(self, pi: int, part: Part) -> list[Span]:
-        if part.street:
-            return []
         words = [t.key for t in part.tokens]
         # The part as typed, before noise removal, may itself be a name ("Bay Area"),
-        # and so may a long part ("Các Tiểu Vương quốc Ả Rập Thống nhất").
+        # and so may a long part ("Các Tiểu Vương quốc Ả Rập Thống nhất"). A part that
+        # looks like a street line is read only when it is a country's name ("Regne Unit").
         for key in dict.fromkeys((part.full_key, part.lead_key, part.key)):
             if len(key.split()) > 1:
                 hits = self._lookup(key)
+                if part.street:
+                    hits = tuple(h for h in hits if h.place.kind == "country")
                 if hits:
                     return [Span(pi, 0, len(words), key, hits)]
+        if part.street:
+            return []
         spans: list[Span] = []
         i = 0
         while i < len(words):
             found = None
             for j in range(min(len(words), i + self.max_words), i, -1):
-                if j - i == 1 and words[i] in STOPWORDS and len(words) > 1:
+                # A stopword alone is no name, unless typed in capitals at the end of
+                # its part ("London ON", "Dover DE").
+                if (
+                    j - i == 1
+                    and words[i] in STOPWORDS
+                    and len(words) > 1
+                    and not (0 < i == len(words) - 1 and part.tokens[i].orig.isupper())
+                ):
                     continue
                 key = " ".join(words[i:j])
                 hits = self._lookup(key)
@@ -203,15 +223,34 @@ class NotAPlaceFilter:
 
     def __init__(self, index: PlaceIndex) -> None:
         self.table = index.nonplace
+        self.fictional = frozenset(k for k, kind in self.table.items() if kind == "fictional")
+
+    def fictional_names(self, query: Query, longest: int = 4) -> list[str]:
+        """Fictional names anywhere in the text ("Hogwarts, Scotland"): runs of up to
+        ``longest`` words, within a part or across the whole text."""
+        runs = [p.full_key.split() for p in query.parts]
+        runs.append(re.sub(r"[^\w\s]", " ", query.folded).split())
+        found = []
+        for words in runs:
+            for n in range(min(longest, len(words)), 0, -1):
+                for i in range(len(words) - n + 1):
+                    key = " ".join(words[i : i + n])
+                    if key in self.fictional and key not in found:
+                        found.append(key)
+        return found
 
     def classify(self, query: Query) -> str:
         raw = query.key
         if not raw:
             return "empty"
+        if query.coordinates or query.zones:
+            return ""  # a position or a time-zone name is a place, whatever surrounds it
         if not query.has_letters:
             return "placeholder" if len(raw) <= 3 else "junk"
         if query.flags:
             return ""  # a flag is a place, whatever words surround it
+        if query.offsets and not query.parts and not query.postcodes:
+            return "junk"  # a bare UTC offset ("UTC+2") names no place
         keys = {
             query.folded,
             re.sub(r"[^\w\s]", " ", query.folded).strip(),
@@ -367,6 +406,31 @@ class CountryStage(_SpanStage):
         if hit.origin in ("code2", "code3"):
             return _code_allowed(query, span, hit.origin)
         return True
+
+
+class AbbreviationStage:
+    """Informal and sports abbreviations of countries ("Pretoria, SA", "Split, CRO"),
+    read only after another word, where they qualify a place; a reading the place
+    before them does not fit leaves them to their other meanings."""
+
+    name = "abbreviation"
+
+    def __init__(self, index: PlaceIndex) -> None:
+        self.index = index
+
+    def resolve(self, query: Query, spans: Sequence[Span] = ()) -> list[Mention]:
+        out = []
+        for pi, part in enumerate(query.parts):
+            for i, token in enumerate(part.tokens):
+                cc = COUNTRY_ABBREVIATIONS.get(token.key.replace(".", ""))
+                place = self.index.countries.get(cc) if cc else None
+                if place is None or (pi == 0 and i == 0):
+                    continue
+                typed = token.orig.replace(".", "")
+                if typed.isupper() or len(part.tokens) == 1:
+                    reading = Reading(place, "abbreviation", place_weight(place, "abbreviation"))
+                    out.append(Mention(token.key, pi, i, [reading]))
+        return out
 
 
 class SubdivisionStage(_SpanStage):

@@ -18,8 +18,10 @@ from ..paths import gazetteer_dir
 
 __all__ = [
     "BARE_POSTAL_COUNTRIES",
+    "COUNTRY_ABBREVIATIONS",
     "GENERIC_PLACE_WORDS",
     "LOWER_WORD_CODES",
+    "PLACE_CUES",
     "POSTCODE_FORMATS",
     "SAINT_ABBREVIATIONS",
     "SOVEREIGN",
@@ -145,3 +147,17 @@ LOWER_WORD_CODES = _words("lower_word_codes.csv", "code")
 
 # Countries whose subdivision abbreviations stand for a place on their own.
 BARE_POSTAL_COUNTRIES = _words("bare_postal_countries.csv", "country")
+
+# Informal and sports abbreviations of countries ("SA" for South Africa, "CRO"),
+# read only as a qualifier after a place: folded text (dots dropped) → ISO code.
+COUNTRY_ABBREVIATIONS = {
+    row["text"].casefold().replace(".", "").replace(" ", ""): row["country"]
+    for row in read_table("country_abbreviations.csv", ["text", "country"])
+}
+
+# Words that tell which place of several is the current one ("now", "ex", "born in"):
+# (folded phrase, role current|former, position before|after the place).
+PLACE_CUES = tuple(
+    (row["phrase"], row["role"], row["position"])
+    for row in read_table("place_cues.csv", ["phrase", "role", "position"])
+)

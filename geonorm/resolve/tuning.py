@@ -33,6 +33,7 @@ ORIGIN_WEIGHT = {
     "adjective": 0.6,
     "region": 1.0,
     "short": 0.2,
+    "abbreviation": 0.5,
 }
 # Trust in a name of an origin missing from ORIGIN_WEIGHT (from memory).
 OTHER_ORIGIN_WEIGHT = 0.5
@@ -53,6 +54,47 @@ FIRM_TOWN_POP = 5000
 # A close spelling of a whole part replaces its pieces ("Ne York" → York) when it
 # weighs at least this many times their heaviest reading (tuned on the development set).
 RESPELL_ADVANTAGE = 5
+
+# -- the word prior (mentions.place_prior) ------------------------------------
+# A place name is expected to be this common (Zipf scale, wordfreq) for places of
+# renown r (weight, cities times fame): BASE + SLOPE * log10(r); commoner than that,
+# it is likely an ordinary word. Steep: a town of 100,000 named like a common word
+# ("Orange", "Providence") is mostly the word, a world city ("Paris") the city
+# (tuned on the development set).
+ORDINARY_ZIPF_BASE = -7.3
+ORDINARY_ZIPF_SLOPE = 2.0
+# ... plus this much where the text's language is spoken in the place's country:
+# places are written about most at home ("Paris" in French) (tuned on the
+# development set) ...
+HOME_LANGUAGE_BONUS = 1.0
+# ... for places at least this big (from memory: a hamlet is not written about).
+HOME_PLACE_POP = 100_000
+# Softness of that boundary, in Zipf units (tuned on the development set).
+ORDINARY_SCALE = 0.35
+# Among words that name nothing, a place name must be this much more renowned (Zipf
+# units) to be read as a place: prose is made of ordinary words ("hustle,
+# providence and jollof") (tuned on the development set).
+RUNNING_TEXT_SHIFT = 1.0
+# A word such as "in", "near" or "ex" before a place at least this renowned makes
+# it a place, as if it stood alone ("backyard in Cairns") (from memory).
+INTRODUCED_RENOWN = 100_000
+# How much commonness counts where the word stands: among words that name nothing,
+# as a later part of its own, at the head of the text, or as the first part that is
+# nothing but the name (from memory).
+ORDINARY_CONTEXT = {"running": 0.8, "aside": 0.7, "lead": 0.4, "alone": 0.15}
+# A word at least this common (Zipf scale) in the text's language is an ordinary
+# word: a text of nothing else names no place (from memory: wordfreq's small lists
+# start about here).
+ORDINARY_WORD_ZIPF = 3.0
+# Beside a place named clearly, a place whose prior is below this share of its prior
+# is an ordinary word, not a second place (tuned on the development set).
+COMPARABLE_PRIOR = 0.5
+# A text whose every mention has a prior below this, made of ordinary words, is not
+# a place (tuned on the development set).
+JUNK_PRIOR = 0.4
+# An answer's score is multiplied by min(1, prior / PRIOR_FULL) of its weakest place
+# (tuned on the development set).
+PRIOR_FULL = 0.8
 
 # -- pruning readings a reader would not consider (mentions.prune) ------------
 # A town named like a country survives next to the country only from this size
@@ -118,8 +160,10 @@ CITY_OVER_SUBDIVISION_SHARE = 0.5
 SPELLING_POWER = 1.5
 # Factor per unexplained word in a part that names the place ... (tuned on the development set)
 STRAY_WORD_FACTOR = 0.85
-# ... counted up to this many words (tuned on the development set).
+# ... counted up to this many words (tuned on the development set); an ordinary word
+# of the text's language counts as this share of one (tuned on the development set).
 MAX_STRAY_WORDS = 3
+ORDINARY_STRAY_WEIGHT = 0.25
 # Factor for a whole part nobody explained, not a street line (tuned on the development set).
 LOOSE_PART_FACTOR = 0.95
 # A bare town below this size met only by an alternate name ... (tuned on the development set)

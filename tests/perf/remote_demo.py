@@ -5,7 +5,8 @@ service plays a simple geocoder: it answers a query whose title-cased text is
 the name of a GeoNames place of 15,000+ people with that place's country and
 coordinates, and "no result" otherwise. Prints JSON: requests made against the
 budget, rows newly matched per request, and what happened under injected
-faults (429 with Retry-After, 5xx, malformed JSON, a service that is down).
+faults (429 with Retry-After, 5xx, malformed JSON, answers beyond the size
+cap, redirects to another origin, a service that is down).
 """
 
 from __future__ import annotations
@@ -16,7 +17,9 @@ import json
 import sys
 import tempfile
 from collections import Counter
+from contextlib import ExitStack
 from pathlib import Path
+from urllib.parse import quote
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
@@ -39,7 +42,7 @@ def simple_geocoder_answers(texts: list[str]) -> dict[str, list[dict]]:
         c = by_name.get(t.casefold().strip())
         if c:
             out[t] = [
-                hit(c["countrycode"], c["latitude"], c["longitude"], c["name"], relevance=0.85)
+                hit(c["countrycode"], c["latitude"], c["longitude"], c["name"], certainty=0.85)
             ]
     return out
 
@@ -68,6 +71,8 @@ def main() -> None:
                 }
             )
         answers = simple_geocoder_answers(doubtful)
+        stack = ExitStack()
+        elsewhere = stack.enter_context(FixtureServer(Behaviour(answers=answers)))
         scenarios = {
             "clean service": Behaviour(answers=answers),
             "429 with Retry-After on every 3rd string": Behaviour(
@@ -79,6 +84,13 @@ def main() -> None:
             ),
             "malformed JSON for every 2nd string": Behaviour(
                 answers=answers, malformed=set(doubtful[::2])
+            ),
+            "5 MB answers for every 4th string": Behaviour(
+                answers=answers, huge=dict.fromkeys(doubtful[::4], (5_000_000, False))
+            ),
+            "every 5th string redirected to another origin": Behaviour(
+                answers=answers,
+                redirect={t: (302, f"{elsewhere.url}?text={quote(t)}") for t in doubtful[::5]},
             ),
             "service down (always 500)": Behaviour(answers=answers, always=500),
         }
@@ -113,7 +125,9 @@ def main() -> None:
                     else 0.0,
                     "messages": r["messages"],
                     "seconds": summary.seconds,
+                    "requests_to_another_origin": len(elsewhere.requests),
                 }
+        stack.close()
     print(json.dumps({"offline_status": dict(base), "scenarios": result}, indent=1))
 
 

@@ -74,10 +74,13 @@ class IndexBuilder:
         key = fold(text)
         if not key:
             return
+        kind = self.places[pid - 1][1]
         if key in GENERIC_PLACE_WORDS and (
-            origin in ("translation", "lower_sub") or self.places[pid - 1][1] == "subdivision"
+            (origin == "translation" and kind != "country")
+            or origin == "lower_sub"
+            or kind == "subdivision"
         ):
-            return
+            return  # a country's name in a language is its name ("Ísland", Iceland's)
         self.names.add((key, pid, ORIGIN_ID[origin]))
         if fuzzy and len(key) >= 5 and key.isascii():
             self.fuzzy.add((key, pid, ORIGIN_ID[origin]))

@@ -12,15 +12,12 @@ __all__ = ["add_cldr", "cldr_locales"]
 
 
 def cldr_locales() -> list[str]:
-    """Babel's locales for a language, or a language in a script ("sr_Latn"); not per region."""
+    """Every locale babel ships: languages, scripts ("sr_Latn") and regional variants
+    ("yo_BJ", "de_CH", "mn_Mong_MN"), whose names for countries may differ from the
+    language's ("Bɛ̀nɛ̀", "Kapverden")."""
     from babel import localedata
 
-    return sorted(
-        i
-        for i in localedata.locale_identifiers()
-        if "_" not in i
-        or (i.count("_") == 1 and i.split("_")[1].istitle() and len(i.split("_")[1]) == 4)
-    )
+    return sorted(localedata.locale_identifiers())
 
 
 def add_cldr(b: IndexBuilder, locales: Iterable[str] | None = None) -> Counts:

@@ -8,6 +8,7 @@ from pathlib import Path
 from ..normalize import fold
 from ..tables import read_table
 from .builder import Counts, IndexBuilder
+from .layout import ORIGIN_ID
 
 __all__ = ["add_curated"]
 
@@ -38,6 +39,9 @@ def _add_area(b: IndexBuilder, text: str, cc: str, sub: str) -> None:
 
 def _add_alias(b: IndexBuilder, row: dict[str, str]) -> None:
     cc, sub, city, text = row["country"], row["subdivision"], row["city"], row["text"]
+    # Another name of the place (native, other-language, former: "München", "Bombay") is
+    # a name of it; nicknames, abbreviations and demonyms ("NYC", "Glaswegian") are aliases.
+    origin = "name" if row["kind"] == "name" else "alias"
     if city:
         gid = _city(b, city, cc, sub)
         if gid is None:
@@ -45,15 +49,19 @@ def _add_alias(b: IndexBuilder, row: dict[str, str]) -> None:
         elif gid not in b.cities:
             b.warnings.append(f"aliases.csv: city {city!r} ({gid}) is not among the places added")
         else:
-            b.add_name(text, b.cities[gid], "alias")
+            b.add_name(text, b.cities[gid], origin)
     elif sub and sub not in b.subdivisions:
         b.warnings.append(f"aliases.csv: unknown subdivision {sub}")
     elif (sub or cc in b.countries) and row["kind"] == "region_in_country":
         _add_area(b, text, cc, sub)
     elif sub:
-        b.add_name(text, b.subdivisions[sub], "alias")
+        b.add_name(text, b.subdivisions[sub], origin)
+        if origin == "name" and cc in b.countries:
+            # The part's own name is not a name of the whole: a translation that calls
+            # the country by it (Walser "England" for the United Kingdom) gives way.
+            b.names.discard((fold(text), b.countries[cc], ORIGIN_ID["translation"]))
     elif cc in b.countries:
-        b.add_name(text, b.countries[cc], "alias")
+        b.add_name(text, b.countries[cc], origin)
 
 
 def _add_postcode_areas(b: IndexBuilder, folder: Path | None) -> None:
