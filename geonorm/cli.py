@@ -200,13 +200,16 @@ def lookup(
 ) -> None:
     """Resolve location strings given on the command line."""
     from .batch.answers import resolve_keys
-    from .batch.cache import Cache
     from .resolve.resolver import Resolver
 
     show = _Renderer(quiet)
     resolver = Resolver(accept=accept, progress=show.text)
     keys = [resolver.key(t) for t in text]
-    the_cache = Cache(cache) if cache is not None else None
+    the_cache = None
+    if cache is not None:  # sqlite-utils is imported only when a cache is used
+        from .batch.cache import Cache
+
+        the_cache = Cache(cache)
     try:
         answers = resolve_keys(
             dict.fromkeys(keys, 1), resolver=resolver, cache=the_cache, accept=accept, full=True

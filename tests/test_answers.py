@@ -209,3 +209,59 @@ def test_cache_is_a_context_manager_and_translates_sqlite_errors(tmp_path):
     bad.write_bytes(b"this is not a database file, just text" * 100)
     with pytest.raises(CacheError, match="cannot open the cache"):
         Cache(bad)
+
+
+def test_a_long_text_gets_the_same_answer_from_every_entry_point(resolver, tmp_path):
+    """The text is cut in one place, its key: "Lisbon", 600 spaces and "Berlin" names two
+    countries for the Python API, the pipeline, lookup and clean alike."""
+    text = "Lisbon" + " " * 600 + "Berlin"
+    direct = resolver.resolve(text)
+    assert direct.reason is Reason.SEVERAL_COUNTRIES
+    piped = resolve_keys(count_keys([text], resolver), resolver=resolver).results
+    looked = json.loads(_invoke("lookup", text, "--json").stdout)[0]
+    src, out = tmp_path / "p.csv", tmp_path / "o.csv"
+    _write(src, [["location"], [text]])
+    clean_file(src, "location", out, workers=1)
+    cleaned = _read(out)[0]
+    assert cleaned["location"] == text  # the cell itself is kept whole
+    for reason, country in [
+        (piped[resolver.key(text)].reason.value, piped[resolver.key(text)].country),
+        (looked["reason"], looked["country"]),
+        (cleaned["geo_reason"], cleaned["geo_country"]),
+    ]:
+        assert (reason, country) == (direct.reason.value, direct.country)
+
+
+def test_a_huge_cell_makes_a_short_key_and_a_small_cache(resolver, tmp_path):
+    from geonorm.resolve.tuning import MAX_TEXT
+
+    texts = ["Oslo " + "x" * 2_000_000, "Berlin, " + "ab " * 700_000, "🇧🇷" * 600_000]
+    for text in texts:
+        assert len(resolver.key(text)) <= MAX_TEXT  # 500 characters at most
+    src, out, cache = tmp_path / "p.csv", tmp_path / "o.csv", tmp_path / "c.sqlite"
+    _write(src, [["location"], *[[t] for t in texts]])
+    clean_file(src, "location", out, workers=1, cache=cache)
+    assert [row["location"] for row in _read(out)] == texts
+    stored = sum(p.stat().st_size for p in tmp_path.glob("c.sqlite*"))
+    assert stored < 1_000_000  # three strings: a few pages, not megabytes of keys
+
+
+def test_the_lookup_table_shows_text_as_typed_and_never_controls_the_terminal():
+    shown = {"[/x]": "[/x]", "[b]X[/b]": "[b]X[/b]", "X\x1b[2J": "X\\x1b[2J", "Y\u202e": "Y\\u202e"}
+    for text, cell in shown.items():
+        r = _invoke("lookup", text)
+        assert r.exit_code == 0, r.output  # before, "[/x]" raised a markup error
+        assert cell in r.stdout.replace("│", " ").split()  # as typed, not read as styling
+        assert "\x1b" not in r.stdout and "\u202e" not in r.stdout
+    as_json = _invoke("lookup", "Rome\x1b[2J", "Lima\u202e", "--json")
+    assert "\x1b" not in as_json.stdout and "\u202e" not in as_json.stdout
+    assert [d["text"] for d in json.loads(as_json.stdout)] == ["Rome\x1b[2J", "Lima\u202e"]
+
+
+def test_the_clean_summary_shows_control_characters_escaped(tmp_path):
+    src, out = tmp_path / "p.csv", tmp_path / "o\x1b\u202e.csv"
+    _write(src, [["location"], ["Oslo"]])
+    r = _invoke("clean", src, "-c", "location", "-o", out, "--workers", 1)
+    assert r.exit_code == 0, r.output
+    assert "\x1b" not in r.stderr and "\u202e" not in r.stderr
+    assert "o\\x1b\\u202e.csv" in r.stderr  # "wrote …": the name, visibly

@@ -87,3 +87,11 @@ def test_demo_end_to_end(tmp_path):
     )  # the scenario makes lightning detectors commoner in the US
     again = run_demo(tmp_path)["summary"]
     assert again.cache_hits == again.distinct
+
+
+def test_resolve_series_reads_a_pandas_missing_value_as_empty():
+    import pandas as pd
+
+    frame = geonorm.resolve_series(pd.Series(["Oslo", None, float("nan")]))
+    assert list(frame["geo_country"]) == ["NO", "", ""]
+    assert list(frame["geo_reason"])[1:] == ["empty", "empty"]

@@ -163,7 +163,7 @@ def test_an_earlier_cache_of_the_last_layout_keeps_its_answers(tmp_path):
         "[detail] TEXT, [created] TEXT, [updated] TEXT)",
         resolution_row="INSERT INTO resolution VALUES ('oslo', 'v', 'matched', 'city', 'NO', "
         "'', 'Oslo', 59.9, 10.7, 3143244, 0.9, 0.9, "
-        '\'{"candidates": [], "evidence": {"NO": 1.0}}\', \'2024\', \'2024\')',
+        "'{\"candidates\": [], \"evidence\": {\"NO\": 1.0}}', '2024', '2024')",
     )
     with Cache(path) as cache:
         assert cache.get_many(["oslo"], "v")["oslo"].city == "Oslo"

@@ -3,6 +3,12 @@
 from __future__ import annotations
 
 import csv
+import json
+import multiprocessing as mp
+import os
+import random
+import shutil
+import signal
 import sqlite3
 import subprocess
 import sys
@@ -11,9 +17,10 @@ import time
 import pytest
 from typer.testing import CliRunner
 
+from geonorm.batch.cache import Cache
 from geonorm.cli import app
 from geonorm.resolve.resolution import Reason, Resolution, Status
-from geonorm.review.queue import neutralise, restore
+from geonorm.review.queue import QUEUE_COLUMNS, apply_decisions, neutralise, restore
 from geonorm.review.scoring import score_rows
 
 runner = CliRunner()
@@ -408,3 +415,112 @@ def test_score_command_prints_the_tables(tmp_path):
     assert "Precision and coverage by threshold" in r.stdout and "Reliability" in r.stdout
     bad = runner.invoke(app, ["score", str(src), "--column", "where", "--truth", "country"])
     assert bad.exit_code == 1 and "Error: column 'country' is not in" in bad.stderr
+
+
+def _apply_and_exit(queue, cache_path, resolver, ready) -> None:
+    """The body of a run of `review apply`, in a forked process the test kills."""
+    resolver.index.reopen()
+    cache = Cache(cache_path)
+    ready.set()
+    apply_decisions(queue, cache=cache, resolver=resolver)
+    cache.close()
+    os._exit(0)
+
+
+def test_a_killed_apply_stores_all_decisions_or_none(resolver, tmp_path):
+    """`review apply` is all-or-nothing: a run killed (SIGKILL) at any moment leaves either
+    every decision of the file or none of them, never a part."""
+    n = 10_000
+    texts = [f"Place number {i}" for i in range(n)]
+    template, queue = tmp_path / "template.sqlite", tmp_path / "queue.csv"
+    with Cache(template) as cache:
+        cache.put_queue(
+            [{"key": resolver.key(t), "text": t, "exported_at": "now", "file": "q"} for t in texts]
+        )
+    with open(queue, "w", encoding="utf-8", newline="") as fh:
+        writer = csv.DictWriter(fh, QUEUE_COLUMNS, lineterminator="\n")
+        writer.writeheader()
+        writer.writerows(
+            {**dict.fromkeys(QUEUE_COLUMNS, ""), "text": t, "decision_country": "FR"} for t in texts
+        )
+    ctx = mp.get_context("fork")
+
+    def run(kill_after: float | None) -> tuple[int, float]:
+        """Apply on a fresh copy of the cache; kill after the given seconds (or not)."""
+        path = tmp_path / "cache.sqlite"
+        for old in tmp_path.glob("cache.sqlite*"):
+            old.unlink()
+        shutil.copy(template, path)
+        ready = ctx.Event()
+        child = ctx.Process(target=_apply_and_exit, args=(queue, path, resolver, ready))
+        child.start()
+        assert ready.wait(60)
+        started = time.perf_counter()
+        if kill_after is None:
+            child.join(120)
+        else:
+            child.join(kill_after)
+            if child.is_alive():
+                os.kill(child.pid, signal.SIGKILL)
+            child.join(60)
+        took = time.perf_counter() - started
+        with sqlite3.connect(path) as db:
+            return db.execute("SELECT count(*) FROM override").fetchone()[0], took
+
+    stored, whole = run(None)
+    assert stored == n
+    rng = random.Random(4)
+    for k in range(10):  # one kill in each tenth of the run, at a random moment within it
+        stored, _ = run(whole * (k + rng.random()) / 10)
+        assert stored in (0, n), f"a kill after {k + 1} tenth(s) left {stored} of {n} decisions"
+
+
+def _hostile_decisions(cache_path) -> None:
+    texts = [
+        ("Springfield [/x]", "[bold red]alarm[/bold red]"),
+        ("Esc\x1b[31mRed", "right\u202eto left"),
+        ("C1\x9bdel\x7f", "tab\there"),
+    ]
+    with Cache(cache_path) as cache:
+        cache.put_overrides(
+            [
+                {"key": f"k{i}", "text": t, "country": "US", "note": note, "decided_at": "2024"}
+                for i, (t, note) in enumerate(texts)
+            ]
+        )
+
+
+UNSAFE = ("\x1b", "\x9b", "\x7f", "\u202e", "\t")
+
+
+def test_review_list_shows_text_as_typed_and_never_controls_the_terminal(tmp_path):
+    cache = tmp_path / "c.sqlite"
+    _hostile_decisions(cache)
+    r = runner.invoke(app, ["review", "list", "--cache", str(cache)])
+    assert r.exit_code == 0, r.output  # before, "[/x]" raised a markup error
+    assert "Springfield [/x]" in r.stdout
+    assert "[bold red]alarm[/bold red]" in r.stdout  # shown, not turned into styling
+    assert not any(ch in r.stdout for ch in UNSAFE)
+    for shown in ("Esc\\x1b[31mRed", "right\\u202eto left", "C1\\x9bdel\\x7f", "tab\\there"):
+        assert shown in r.stdout
+    listed = runner.invoke(app, ["review", "list", "--cache", str(cache), "--json"])
+    assert listed.exit_code == 0
+    assert not any(ch in listed.stdout for ch in UNSAFE)
+    texts = {d["text"] for d in json.loads(listed.stdout)}  # JSON escapes: the data is exact
+    assert texts == {"Springfield [/x]", "Esc\x1b[31mRed", "C1\x9bdel\x7f"}
+
+
+def test_apply_problems_show_control_characters_escaped(small):
+    tmp_path, _src, cleaned, cache = small
+    queue = tmp_path / "queue.csv"
+    assert _invoke("review", "export", cleaned, "--out", queue, "--cache", cache).exit_code == 0
+    lines = _read(queue)
+    lines[0].update(decision_country="\x1b[2J")
+    with open(queue, "w", encoding="utf-8", newline="") as fh:
+        w = csv.DictWriter(fh, fieldnames=list(lines[0]), lineterminator="\n")
+        w.writeheader()
+        w.writerows(lines)
+    r = _invoke("review", "apply", queue, "--cache", cache)
+    assert r.exit_code == 1
+    assert "'\\x1b[2J' is not an ISO 3166-1 country code" in r.stderr
+    assert "\x1b" not in r.stderr

@@ -21,15 +21,17 @@ from collections import Counter
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..progress import Progress, no_progress, start
 from ..resolve.prior import rerank
 from ..resolve.resolution import Reason, Resolution, Status, settle
 from ..resolve.resolver import Resolver
-from .cache import Cache
 from .engines import Engine, LocalEngine
 from .options import RemoteOptions
+
+if TYPE_CHECKING:  # sqlite-utils costs half a second to import; a lookup without a cache skips it
+    from .cache import Cache
 
 __all__ = ["Answers", "count_keys", "needs_remote", "resolve_keys"]
 
@@ -131,7 +133,10 @@ def _remote_stage(
     """Send the doubtful rest to a remote geocoder (or replay its cached answers) and merge."""
     from .remote import load_adapter, merge, run_remote
 
-    cache = cache if cache is not None else Cache()
+    if cache is None:
+        from .cache import Cache
+
+        cache = Cache()
     results = answers.results
     wanted = [(k, n) for k, n in counts.items() if k and needs_remote(results[k], accept)]
     summary: dict[str, Any]

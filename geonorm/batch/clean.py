@@ -12,6 +12,7 @@ byte-identical to an uninterrupted one.
 from __future__ import annotations
 
 import json
+import math
 import os
 import time
 from collections import Counter
@@ -291,7 +292,8 @@ def resolve_series(
     DataFrame (same index), anything else a dict of lists. Rows keep their order.
     """
     options = CleanOptions.build(**({} if accept is None else {"accept": accept}), prefix=prefix)
-    data = list(values)
+    # pandas stores a missing text as NaN: a missing value, not the text "nan".
+    data = [None if isinstance(v, float) and math.isnan(v) else v for v in values]
     resolver = resolver or Resolver(accept=options.accept)
     answers = resolve_keys(
         count_keys(data, resolver),

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 import re
+from array import array
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import replace
 from functools import lru_cache
@@ -322,23 +323,72 @@ _TRUSTED_ORIGINS = frozenset(
 )
 
 
-@lru_cache(maxsize=len(LANGUAGES))
-def _frequencies(lang: str) -> dict[str, float]:
+class _ZipfTable:
+    """Word → Zipf value in each of ``LANGUAGES``: the words joined by newlines, and one
+    flat array of doubles, ``len(LANGUAGES)`` per word."""
+
+    def __init__(self, words: str, values: bytes) -> None:
+        self.row = {w: i for i, w in enumerate(words.split("\n"))}
+        self.values = array("d")
+        self.values.frombytes(values)
+
+    def get(self, word: str) -> tuple[float, ...]:
+        i = self.row.get(word)
+        if i is None:
+            return _NOT_A_WORD
+        n = len(LANGUAGES)
+        return tuple(self.values[i * n : (i + 1) * n])
+
+
+@lru_cache(maxsize=1)
+def _zipf_table() -> _ZipfTable:
+    """wordfreq's small lists of ``LANGUAGES``, merged.
+
+    Reading seven lists costs more than half a second per process, so the merged
+    table is kept beside the place index (``wordfreq-<version>-….bin`` in the data
+    folder, written once, atomically) and loaded from there in a few milliseconds.
+    """
+    import marshal
+    import os
+    from importlib.metadata import version
+
+    from ..paths import data_dir
+
+    path = data_dir() / f"wordfreq-{version('wordfreq')}-{'-'.join(LANGUAGES)}.bin"
+    try:
+        with open(path, "rb") as fh:
+            words, values = marshal.load(fh)
+        return _ZipfTable(words, values)
+    except (OSError, EOFError, ValueError, TypeError):
+        pass
     from wordfreq import get_frequency_dict
 
-    return get_frequency_dict(lang, wordlist="small")
+    lists = [get_frequency_dict(lang, wordlist="small") for lang in LANGUAGES]
+    ordered = sorted(set().union(*lists))
+    flat = array(
+        "d",
+        (math.log10(f[w]) + 9 if f.get(w, 0) > 0 else 0.0 for w in ordered for f in lists),
+    )
+    packed = ("\n".join(ordered), flat.tobytes())
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        tmp = path.with_suffix(f".{os.getpid()}.tmp")
+        with open(tmp, "wb") as fh:
+            marshal.dump(packed, fh)
+        os.replace(tmp, path)
+    except OSError:
+        pass  # a read-only data folder: the lists are read again next time
+    return _ZipfTable(*packed)
+
+
+_NOT_A_WORD = (0.0,) * len(LANGUAGES)
 
 
 @lru_cache(maxsize=100_000)
 def word_zipf(word: str) -> tuple[float, ...]:
     """How common ``word`` (as typed, any case) is in each of ``LANGUAGES``, on the
     Zipf scale (log10 of uses per billion words; 0 for words outside the lists)."""
-    key = word.casefold().strip(".'-")
-    out = []
-    for lang in LANGUAGES:
-        f = _frequencies(lang).get(key, 0.0)
-        out.append(math.log10(f) + 9 if f > 0 else 0.0)
-    return tuple(out)
+    return _zipf_table().get(word.casefold().strip(".'-"))
 
 
 def text_language(words: Iterable[str]) -> int:
