@@ -775,3 +775,17 @@ def test_quiet_hides_progress_never_errors(tmp_path, monkeypatch):
     monkeypatch.setattr(clean_module, "clean_file", broken)
     r = _clean(tmp_path, src, tmp_path / "out.csv", "--quiet")
     assert isinstance(r.exception, RuntimeError)  # not swallowed, not turned into a message
+
+
+@pytest.mark.parametrize("fmt", ["csv", "parquet"])
+def test_file_names_with_glob_characters_are_read_as_names(tmp_path, fmt):
+    """Brackets and stars in a file name are part of the name, never a pattern."""
+    src = tmp_path / f"people[1]*.{fmt}"
+    frame = pl.DataFrame({"id": ["1", "2"], "location": ["Oslo", "Lyon"]})
+    frame.write_csv(src) if fmt == "csv" else frame.write_parquet(src)
+    out = tmp_path / f"clean[1].{fmt}"
+    r = runner.invoke(app, ["clean", str(src), "-c", "location", "-o", str(out), "--workers", "1"])
+    assert r.exit_code == 0, r.stderr
+    data = out.read_bytes()
+    got = pl.read_csv(data) if fmt == "csv" else pl.read_parquet(data)
+    assert got["geo_country"].to_list() == ["NO", "FR"]

@@ -115,19 +115,8 @@ _EARLIER: dict[str, tuple[frozenset[str], ...]] = {
     name: (_columns(cols),) for name, cols, _ in _LAYOUT if name != "geonorm_meta"
 }
 _EARLIER["resolution"] += (
-    frozenset(
-        (
-            "key",
-            "version",
-            "status",
-            "country",
-            "confidence",
-            "reason",
-            "data",
-            "created",
-            "updated",
-        )
-    ),
+    _columns("[key], [version], [status], [country], [confidence], [reason], [data], [created]")
+    | {"updated"},
 )
 _EARLIER["run"] += (_columns("[output], [input], [column], [at]"),)
 _LAST_UNMARKED = 2  # PRAGMA user_version of the last unmarked layout, whose answers stay

@@ -606,9 +606,10 @@ def output_format(output: str, given: str | None, source: Source) -> str:
 
 def _scan(source: Source) -> pl.LazyFrame:
     if source.format == "parquet":
-        return pl.scan_parquet(source.path)
+        return pl.scan_parquet(source.path, glob=False)
     return pl.scan_csv(
         source.path,
+        glob=False,
         separator=source.separator,
         infer_schema=False,
         encoding="utf8",
@@ -912,6 +913,7 @@ def find_ragged(source: Source, expected: int) -> list[int]:
     try:
         lines = pl.scan_csv(
             source.path,
+            glob=False,
             has_header=False,
             separator="\x1f",
             quote_char=None,
@@ -1004,12 +1006,13 @@ def _check_rows(written: int, rows: int, what: str) -> None:
 
 def _count_rows(path: Path, fmt: str, separator: str = ",") -> int:
     if fmt == "parquet":
-        return int(pl.scan_parquet(path).select(pl.len()).collect().item())
+        return int(pl.scan_parquet(path, glob=False).select(pl.len()).collect().item())
     if fmt == "jsonl":
         with open(path, "rb") as fh:
             return sum(1 for line in fh if line.strip())
     lf = pl.scan_csv(
         path,
+        glob=False,
         separator="\t" if fmt == "tsv" else separator,
         infer_schema=False,
         quote_char='"',
