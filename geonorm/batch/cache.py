@@ -30,7 +30,9 @@ from __future__ import annotations
 import functools
 import json
 import os
+import random
 import sqlite3
+import time
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
@@ -324,6 +326,31 @@ def _answer(row: Sequence[Any], full: bool) -> Resolution:
     return res
 
 
+def _set_up_patiently(conn: sqlite3.Connection, path: Path, timeout: float) -> None:
+    """``_set_up``, tried again while another process holds the lock.
+
+    SQLite answers "database is locked" at once, without waiting for the busy
+    timeout, where waiting could deadlock (switching the journal mode, upgrading a
+    read to a write); many runs opening one new file meet that. Setting up is
+    idempotent, so it is simply tried again, with a short jittered pause, until
+    ``timeout`` seconds have passed.
+    """
+    deadline = time.monotonic() + timeout
+    pause = 0.02
+    while True:
+        try:
+            _set_up(conn, path)
+            return
+        except sqlite3.OperationalError as exc:
+            if conn.in_transaction:
+                conn.rollback()
+            busy = "locked" in str(exc) or "busy" in str(exc)
+            if not busy or time.monotonic() >= deadline:
+                raise
+        time.sleep(pause * (0.5 + random.random()))
+        pause = min(pause * 2, 0.5)
+
+
 class Cache:
     """The answers, decisions, queue, remote answers and run records of one SQLite file.
 
@@ -345,7 +372,7 @@ class Cache:
                 f"cannot open the cache at {self.path} ({exc})", hint=_hint(exc)
             ) from exc
         try:
-            _set_up(conn, self.path)
+            _set_up_patiently(conn, self.path, timeout)
         except (sqlite3.Error, OSError) as exc:
             conn.close()
             raise CacheError(
