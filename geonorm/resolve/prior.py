@@ -16,7 +16,7 @@ from collections.abc import Mapping, MutableMapping
 from dataclasses import replace
 
 from .calibration import Calibration
-from .resolution import Candidate, Reason, Resolution, Status, settle
+from .resolution import Candidate, Reason, Resolution, Status, status_at
 from .tuning import (
     PRIOR_EXPONENT,
     PRIOR_FLOOR,
@@ -31,7 +31,7 @@ __all__ = ["eligible", "file_prior", "reconsider", "rerank"]
 
 def _status(res: Resolution, accept: float | None) -> Status:
     """The answer's status, or the one ``settle`` would give it at ``accept`` (unchanged)."""
-    return res.status if accept is None else settle(replace(res), accept).status
+    return res.status if accept is None else status_at(res, accept)
 
 
 def file_prior(

@@ -6,7 +6,7 @@ from dataclasses import asdict, dataclass, field
 from enum import Enum
 from typing import Any
 
-__all__ = ["Candidate", "Reason", "Resolution", "Status", "settle"]
+__all__ = ["Candidate", "Reason", "Resolution", "Status", "settle", "status_at"]
 
 
 class Status(str, Enum):
@@ -124,8 +124,8 @@ class Resolution:
 _ALWAYS_REVIEW = frozenset({Reason.SEVERAL_COUNTRIES, Reason.REMOTE_DIFFERS})
 
 
-def settle(res: Resolution, accept: float) -> Resolution:
-    """Set the status of an answer from its reason, country and confidence (in place).
+def status_at(res: Resolution, accept: float) -> Status:
+    """The status an answer has at threshold ``accept`` (the rule ``settle`` applies).
 
     The one place where ``matched`` and ``review`` are decided: an answer with a
     country is ``matched`` when its confidence reaches ``accept``, else ``review``;
@@ -133,7 +133,20 @@ def settle(res: Resolution, accept: float) -> Resolution:
     person's decision is final; no country is ``unmatched``; ``not_a_place`` stays.
     """
     if res.status is Status.NOT_A_PLACE:
-        return res
+        return Status.NOT_A_PLACE
+    if res.reason in _ALWAYS_REVIEW:
+        return Status.REVIEW
+    if res.reason is Reason.REVIEWED:
+        return Status.MATCHED
+    if res.country:
+        return Status.MATCHED if res.confidence >= accept else Status.REVIEW
+    return Status.UNMATCHED
+
+
+def settle(res: Resolution, accept: float) -> Resolution:
+    """Set the status of an answer to ``status_at(res, accept)`` (in place)."""
+    res.status = status_at(res, accept)
+    return res
     if res.reason in _ALWAYS_REVIEW:
         res.status = Status.REVIEW
     elif res.reason is Reason.REVIEWED:
