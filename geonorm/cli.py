@@ -219,11 +219,9 @@ def lookup(
             the_cache.close()
     results = [(t, answers.results[k]) for t, k in zip(text, keys, strict=True)]
     if as_json:
-        payload = [
-            {"text": t, **{k: v for k, v in r.to_dict().items() if k not in ("evidence", "score")}}
-            for t, r in results
-        ]
-        _print_json(payload)
+        from .batch.lookup import answer_json
+
+        _print_json([answer_json(t, r) for t, r in results])
         return
     table = Table(show_lines=False)
     for col in ("text", "status", "place", "confidence", "reason", "candidates"):
@@ -793,6 +791,111 @@ def gazetteer_info(
     for k, v in meta.items():
         table.add_row(shown(k), shown(v))
     out.print(table)
+
+
+serve_app = typer.Typer(
+    help="Run the batch service (HTTP: resolve, file jobs, decisions, a review page), "
+    "or manage its tokens.",
+    invoke_without_command=True,
+)
+app.add_typer(serve_app, name="serve")
+token_app = typer.Typer(help="Make, list and revoke the service's tokens.", no_args_is_help=True)
+serve_app.add_typer(token_app, name="token")
+DataDirOpt = Annotated[
+    Path,
+    typer.Option(
+        "--data-dir", help="The service's folder: cache, jobs table, job files, token hashes."
+    ),
+]
+
+
+@serve_app.callback()
+@handle_errors
+def serve(
+    ctx: typer.Context,
+    data_dir: Annotated[
+        Path | None,
+        typer.Option(
+            "--data-dir", help="The service's folder: cache, jobs table, job files, token hashes."
+        ),
+    ] = None,
+    host: Annotated[
+        str,
+        typer.Option("--host", help="Address to listen on (another than loopback needs a token)."),
+    ] = "127.0.0.1",
+    port: Annotated[
+        int, typer.Option("--port", min=1, max=65535, help="Port to listen on.")
+    ] = 8750,
+    job_workers: Annotated[
+        int, typer.Option("--job-workers", min=1, help="Processes running file jobs.")
+    ] = 1,
+    keep_days: Annotated[
+        int, typer.Option("--keep-days", min=1, help="Delete jobs and their files after this.")
+    ] = 30,
+    rate: Annotated[
+        float, typer.Option("--rate", min=0.0, help="Requests a second per token (0: no limit).")
+    ] = 50.0,
+    max_upload_mb: Annotated[
+        int, typer.Option("--max-upload-mb", min=1, help="Largest file a job takes.")
+    ] = 2048,
+) -> None:
+    """Run the batch service on this machine (stop it with Ctrl-C or SIGTERM)."""
+    if ctx.invoked_subcommand is not None:
+        return
+    if data_dir is None:
+        raise GeonormError(
+            "geonorm serve needs --data-dir", hint="pass a folder, e.g. --data-dir geonorm-service"
+        )
+    from .service.server import serve as run_service
+
+    run_service(
+        data_dir,
+        host=host,
+        port=port,
+        job_workers=job_workers,
+        keep_days=keep_days,
+        rate=rate,
+        max_upload_mb=max_upload_mb,
+    )
+
+
+@token_app.command("add")
+@handle_errors
+def token_add(
+    name: Annotated[str, typer.Argument(help="Who or what uses the token.")],
+    role: Annotated[str, typer.Option("--role", help="resolve, review or admin.")],
+    data_dir: DataDirOpt,
+) -> None:
+    """Make a token; prints it once (only a salted hash is kept)."""
+    from .service.server import add_token
+
+    typer.echo(add_token(data_dir, name, role))
+
+
+@token_app.command("list")
+@handle_errors
+def token_list(data_dir: DataDirOpt) -> None:
+    """List the tokens' names and roles (never the tokens)."""
+    from .service.server import list_tokens
+
+    table = Table()
+    for col in ("name", "role", "created"):
+        table.add_column(col)
+    for t in list_tokens(data_dir):
+        table.add_row(shown(t.name), t.role, t.created)
+    out.print(table)
+
+
+@token_app.command("revoke")
+@handle_errors
+def token_revoke(
+    name: Annotated[str, typer.Argument(help="The token's name.")], data_dir: DataDirOpt
+) -> None:
+    """Remove a token; the service refuses it from the next request on."""
+    from .service.server import revoke_token
+
+    revoke_token(data_dir, name)
+    typer.echo(visible(f"revoked the token {name!r}"), err=True)
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -343,9 +343,9 @@ def test_nul_cell_and_missing_value_stay_two_rows(tmp_path, src_name, out_name):
 def test_row_count_invariant_stops_and_replaces_nothing(tmp_path, monkeypatch):
     from geonorm.batch import formats
 
-    real = formats._mapping_frame
+    real = formats._join_table
     # A join key that is not unique would repeat rows; simulate it.
-    monkeypatch.setattr(formats, "_mapping_frame", lambda *a, **k: pl.concat([real(*a, **k)] * 2))
+    monkeypatch.setattr(formats, "_join_table", lambda *a, **k: pl.concat([real(*a, **k)] * 2))
     src, out = tmp_path / "in.csv", tmp_path / "out.csv"
     src.write_text("id,loc\n1,Oslo\n2,Lyon\n", encoding="utf-8")
     out.write_text("earlier output\n", encoding="utf-8")

@@ -8,8 +8,9 @@ from pathlib import Path
 import geonorm
 
 PACKAGE = Path(geonorm.__file__).parent
-# Lower layers never import higher ones: text → answer, then tables, then people and figures.
-LAYERS = ["resolve", "batch", "review", "figures"]
+# Lower layers never import higher ones: text → answer, then tables, then people and figures,
+# then the service above them all.
+LAYERS = ["resolve", "batch", "review", "figures", "service"]
 
 
 def _module_name(path: Path) -> str:

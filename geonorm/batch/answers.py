@@ -13,6 +13,9 @@ Every entry point — ``clean``, ``resolve_series``, ``lookup``, ``score``,
 5. **remote** — optionally, a remote geocoder for the doubtful rest (or its
    cached answers only, when replaying a run);
 6. **settle** — the accept threshold sets every status, here and nowhere else.
+
+``batch/columnar.py`` runs the same steps for a whole file's distinct values
+as columns (``answer_table``).
 """
 
 from __future__ import annotations
@@ -30,7 +33,7 @@ from ..resolve.resolver import Resolver
 from .engines import Engine, LocalEngine
 from .options import RemoteOptions
 
-if TYPE_CHECKING:  # sqlite-utils costs half a second to import; a lookup without a cache skips it
+if TYPE_CHECKING:  # a lookup without a cache never imports it
     from .cache import Cache
 
 __all__ = ["Answers", "count_keys", "needs_remote", "resolve_keys"]

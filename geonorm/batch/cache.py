@@ -7,6 +7,15 @@ version is a miss, so a new index never serves stale answers. WAL mode lets a
 reader and a writer share the file; writes are batched in one transaction per
 chunk, so an interrupted run keeps what it committed.
 
+For reruns of whole files (``columnar.answer_table``) three more tables hold,
+under the resolver version that made them: ``text_key``, each raw text's key
+(stored when the text is first normalised; cells longer than a few thousand
+characters are not kept); ``answer_pack``, raw texts with their stored
+answers as blocks of columns (Arrow IPC), read back in one query; and
+``prior_pack``, what a file prior did to the answers it weighed, by the
+prior's fingerprint. All three are caches of the tables above: rows of
+another resolver version are never read.
+
 A cache file is marked as ours by ``PRAGMA application_id`` (``APPLICATION_ID``)
 and a table ``geonorm_meta`` holding the layout version (``CACHE_SCHEMA``).
 Opening a file:
@@ -28,6 +37,8 @@ none of it.
 from __future__ import annotations
 
 import functools
+import io
+import itertools
 import json
 import os
 import random
@@ -36,9 +47,7 @@ import time
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
-from typing import Any, ParamSpec, TypeVar
-
-import sqlite_utils
+from typing import TYPE_CHECKING, Any, ParamSpec, TypeVar
 
 from ..clock import utc_stamp
 from ..errors import CacheError
@@ -46,15 +55,37 @@ from ..paths import data_dir
 from ..resolve.resolution import Candidate, Reason, Resolution, Status
 from .remote_answer import RemoteAnswer, answer_from_json, answer_to_json
 
+if TYPE_CHECKING:  # polars is imported where columns are read: a lookup does not need it
+    import polars as pl
+
 __all__ = ["APPLICATION_ID", "CACHE_SCHEMA", "Cache", "default_cache_path"]
 
-CACHE_SCHEMA = 3  # layout of our tables, kept in geonorm_meta; 2 was the last unmarked one
+CACHE_SCHEMA = 4  # layout of our tables, kept in geonorm_meta; 2 was the last unmarked one
 APPLICATION_ID = 0x67656F6E  # "geon" in ASCII: PRAGMA application_id of a geonorm cache
 _BUSY_SECONDS = 60.0  # how long to wait for another run's write lock before giving up
 # Reasons whose answers the file prior may re-rank: their evidence is read back.
 _DETAILED = {Reason.AMBIGUOUS.value, Reason.CITY_BY_SIZE.value, Reason.SEVERAL_COUNTRIES.value}
 _STATUS = {s.value: s for s in Status}
 _REASON = {r.value: r for r in Reason}
+
+
+# The answer columns read in bulk (``answer_rows``), with their polars types.
+ANSWER_COLUMNS: dict[str, str] = {
+    "key": "String",
+    "status": "String",
+    "reason": "String",
+    "country": "String",
+    "subdivision": "String",
+    "city": "String",
+    "lat": "Float64",
+    "lon": "Float64",
+    "confidence": "Float64",
+}
+_SCAN_SHARE = 4  # asking for at least 1/4 of a table: one sequential scan beats IN queries
+_SCAN_MIN = 5000  # below this many keys, IN queries always
+_PACKS = 16  # answer packs kept before they are merged into one
+_PRIORS = 16  # file priors whose results are kept (the latest)
+_PACK_ROWS = 1_000_000  # packs up to this many rows are read whatever a run asks for
 
 
 _T = TypeVar("_T")
@@ -104,7 +135,15 @@ _LAYOUT: tuple[tuple[str, str, str], ...] = (
     ("remote_usage", "[provider] TEXT, [requests] INTEGER", "[provider]"),
     ("run", "[output] TEXT, [input] TEXT, [column] TEXT, [at] TEXT, [remote] TEXT", "[output]"),
     ("geonorm_meta", "[name] TEXT, [value] TEXT", "[name]"),
+    # Raw text → its key, as the resolver version of ``version`` normalised it (layout 4).
+    ("text_key", "[text] TEXT, [version] TEXT, [key] TEXT", "[text]"),
+    # Stored answers by raw text, as blocks of columns (Arrow IPC) (layout 4).
+    ("answer_pack", "[id] INTEGER, [version] TEXT, [rows] INTEGER, [data] BLOB", "[id]"),
+    # What a file prior did to the answers it weighed, by the prior's fingerprint (layout 4).
+    ("prior_pack", "[fingerprint] TEXT, [version] TEXT, [at] TEXT, [data] BLOB", "[fingerprint]"),
 )
+# Tables no unmarked cache had.
+_SINCE_MARKED = frozenset({"geonorm_meta", "text_key", "answer_pack", "prior_pack"})
 
 
 def _columns(definition: str) -> frozenset[str]:
@@ -114,7 +153,7 @@ def _columns(definition: str) -> frozenset[str]:
 # Tables and column sets of the caches earlier releases made (no marker): a file holding
 # only these is ours to migrate. The first resolution layout kept the answer as JSON.
 _EARLIER: dict[str, tuple[frozenset[str], ...]] = {
-    name: (_columns(cols),) for name, cols, _ in _LAYOUT if name != "geonorm_meta"
+    name: (_columns(cols),) for name, cols, _ in _LAYOUT if name not in _SINCE_MARKED
 }
 _EARLIER["resolution"] += (
     _columns("[key], [version], [status], [country], [confidence], [reason], [data], [created]")
@@ -326,6 +365,32 @@ def _answer(row: Sequence[Any], full: bool) -> Resolution:
     return res
 
 
+def _first_of_each(frame: pl.DataFrame) -> pl.DataFrame:
+    """The first row of each text (two runs may have stored one text at once)."""
+    texts = frame.get_column("text")
+    return frame if texts.n_unique() == frame.height else frame.filter(texts.is_first_distinct())
+
+
+def _ipc(frame: pl.DataFrame) -> bytes:
+    out = io.BytesIO()
+    frame.write_ipc(out, compression="lz4")
+    return out.getvalue()
+
+
+def _columns_of(rows: Sequence[Sequence[Any]], schema: Mapping[str, str]) -> pl.DataFrame:
+    """Rows read from SQLite as a polars frame of ``schema`` (names of polars types),
+    column by column (fast)."""
+    import polars as pl
+
+    columns = list(zip(*rows, strict=True)) if rows else [() for _ in schema]
+    return pl.DataFrame(
+        [
+            pl.Series(name, values, dtype=getattr(pl, dtype))
+            for (name, dtype), values in zip(schema.items(), columns, strict=True)
+        ]
+    )
+
+
 def _set_up_patiently(conn: sqlite3.Connection, path: Path, timeout: float) -> None:
     """``_set_up``, tried again while another process holds the lock.
 
@@ -381,7 +446,7 @@ class Cache:
         except BaseException:
             conn.close()
             raise
-        self.db = sqlite_utils.Database(conn)
+        self.db = conn
 
     def __enter__(self) -> Cache:
         return self
@@ -395,7 +460,7 @@ class Cache:
 
     @property
     def conn(self) -> sqlite3.Connection:
-        return self.db.conn
+        return self.db
 
     def _in_batches(
         self, sql: str, keys: Sequence[str], before: Sequence[Any] = ()
@@ -481,6 +546,187 @@ class Cache:
                 "score=excluded.score, detail=excluded.detail, updated=excluded.updated",
                 rows,
             )
+
+    # -- in bulk, as columns (the warm path of a whole file) ------------------
+    def _scan_rather(self, table: str, wanted: int) -> bool:
+        """Whether one sequential scan of ``table`` beats IN queries for ``wanted`` keys."""
+        if wanted <= _SCAN_MIN:
+            return False
+        # The largest rowid: as many rows as the table ever held at once, read in O(log n).
+        top = self.conn.execute(f"SELECT max(rowid) FROM [{table}]").fetchone()[0] or 0
+        return wanted * _SCAN_SHARE >= top
+
+    def _frame(
+        self, sql: str, wanted: pl.Series, table: str, schema: Mapping[str, str], before: Any
+    ) -> pl.DataFrame:
+        """Rows of ``sql`` whose first column is among ``wanted``, as a polars frame.
+
+        ``sql`` reads the whole of ``table`` (one scan, when ``wanted`` is a good part
+        of it) or, with `` AND <first column> IN ({marks})`` appended, batches of keys.
+        """
+        import polars as pl
+
+        first = next(iter(schema))
+        if self._scan_rather(table, wanted.len()):
+            rows: list[Any] = self.conn.execute(sql, before).fetchall()
+            return _columns_of(rows, schema).filter(pl.col(first).is_in(wanted.implode()))
+        rows = list(self._in_batches(f"{sql} AND {first} IN ({{marks}})", wanted.to_list(), before))
+        return _columns_of(rows, schema)
+
+    @_guarded
+    def text_keys(self, texts: pl.Series, version: str) -> pl.DataFrame:
+        """The stored keys (``text``, ``key``) of the raw ``texts`` under resolver ``version``.
+
+        A key is stored by ``put_text_keys`` when a text is first normalised; a
+        text normalised by another resolver version has none here.
+        """
+        schema = {"text": "String", "key": "String"}
+        texts = texts.drop_nulls().unique()
+        sql = "SELECT text, key FROM text_key WHERE version = ?"
+        return self._frame(sql, texts, "text_key", schema, [version])
+
+    @_guarded
+    def put_text_keys(self, texts: Sequence[str], keys: Sequence[str], version: str) -> None:
+        """Store the key of each raw text (one transaction)."""
+        if not texts:
+            return
+        with _transaction(self.conn) as conn:
+            conn.executemany(
+                "INSERT INTO text_key (text, version, key) VALUES (?, ?, ?) ON CONFLICT(text) "
+                "DO UPDATE SET version = excluded.version, key = excluded.key",
+                zip(texts, itertools.repeat(version), keys),
+            )
+
+    @_guarded
+    def answer_rows(self, keys: pl.Series, version: str) -> pl.DataFrame:
+        """The stored answers of ``keys`` as columns (``ANSWER_COLUMNS``), in a few queries."""
+
+        sql = f"SELECT {', '.join(ANSWER_COLUMNS)} FROM resolution WHERE version = ?"
+        frame = self._frame(
+            sql, keys.drop_nulls().unique(), "resolution", ANSWER_COLUMNS, [version]
+        )
+        return self._checked(frame)
+
+    def _checked(self, frame: pl.DataFrame) -> pl.DataFrame:
+        """``frame`` of answer columns, refused when a status or reason is not ours."""
+        import polars as pl
+
+        try:
+            frame.select(
+                pl.col("status").cast(pl.Enum(list(_STATUS))),
+                pl.col("reason").cast(pl.Enum(list(_REASON))),
+            )
+        except pl.exceptions.PolarsError as exc:
+            raise CacheError(
+                f"an answer stored in the cache at {self.path} is damaged ({exc})",
+                hint=_DAMAGED,
+            ) from exc
+        return frame
+
+    @_guarded
+    def packed_answers(self, texts: pl.Series, version: str) -> pl.DataFrame | None:
+        """Stored answers by raw text, from the packs of resolver ``version``: ``text``,
+        ``key`` and ``ANSWER_COLUMNS``, for those of ``texts`` a pack holds.
+
+        A pack is a block of columns (Arrow IPC) that ``put_pack`` stored. None when
+        there is none, or when the packs hold far more texts than asked for (the
+        answers are then read by key).
+        """
+        import polars as pl
+
+        held = self.conn.execute(
+            "SELECT count(*), sum(rows) FROM answer_pack WHERE version = ?", (version,)
+        ).fetchone()
+        if not held[0] or held[1] > max(_PACK_ROWS, _SCAN_SHARE * texts.len()):
+            return None
+        blobs = self.conn.execute(
+            "SELECT data FROM answer_pack WHERE version = ? ORDER BY id", (version,)
+        ).fetchall()
+        try:
+            frame = pl.concat([pl.read_ipc(io.BytesIO(blob)) for (blob,) in blobs])
+            frame = frame.select(["text", *ANSWER_COLUMNS]).cast(
+                {
+                    name: getattr(pl, kind)
+                    for name, kind in {"text": "String", **ANSWER_COLUMNS}.items()
+                }
+            )
+        except (OSError, TypeError, pl.exceptions.PolarsError) as exc:
+            raise CacheError(
+                f"a block of answers stored in the cache at {self.path} is damaged ({exc})",
+                hint=_DAMAGED,
+            ) from exc
+        frame = frame.filter(frame.get_column("text").is_in(texts.drop_nulls().implode()))
+        return self._checked(_first_of_each(frame))
+
+    @_guarded
+    def put_pack(self, frame: pl.DataFrame, version: str) -> None:
+        """Store answers by raw text as one pack (one transaction). Packs of other resolver
+        versions are dropped; many packs are merged into one."""
+        import polars as pl
+
+        with _transaction(self.conn) as conn:
+            conn.execute("DELETE FROM answer_pack WHERE version <> ?", (version,))
+            conn.execute(
+                "INSERT INTO answer_pack (version, rows, data) VALUES (?, ?, ?)",
+                (version, frame.height, _ipc(frame)),
+            )
+            count = conn.execute("SELECT count(*) FROM answer_pack").fetchone()[0]
+            if count > _PACKS:
+                blobs = conn.execute("SELECT data FROM answer_pack ORDER BY id").fetchall()
+                merged = _first_of_each(pl.concat([pl.read_ipc(io.BytesIO(b)) for (b,) in blobs]))
+                conn.execute("DELETE FROM answer_pack")
+                conn.execute(
+                    "INSERT INTO answer_pack (version, rows, data) VALUES (?, ?, ?)",
+                    (version, merged.height, _ipc(merged)),
+                )
+
+    @_guarded
+    def prior_results(self, fingerprint: str) -> pl.DataFrame | None:
+        """What ``put_prior_results`` stored for the file prior ``fingerprint``, if anything."""
+        import polars as pl
+
+        row = self.conn.execute(
+            "SELECT data FROM prior_pack WHERE fingerprint = ?", (fingerprint,)
+        ).fetchone()
+        if row is None:
+            return None
+        try:
+            return pl.read_ipc(io.BytesIO(row[0]))
+        except (OSError, pl.exceptions.PolarsError) as exc:
+            raise CacheError(
+                f"a block of answers stored in the cache at {self.path} is damaged ({exc})",
+                hint=_DAMAGED,
+            ) from exc
+
+    @_guarded
+    def put_prior_results(self, fingerprint: str, version: str, frame: pl.DataFrame) -> None:
+        """Store what a file prior did (one transaction); the latest ``_PRIORS`` are kept."""
+        with _transaction(self.conn) as conn:
+            conn.execute(
+                "INSERT OR REPLACE INTO prior_pack (fingerprint, version, at, data) "
+                "VALUES (?, ?, ?, ?)",
+                (fingerprint, version, utc_stamp(), _ipc(frame)),
+            )
+            conn.execute(
+                "DELETE FROM prior_pack WHERE version <> ? OR rowid NOT IN "
+                "(SELECT rowid FROM prior_pack ORDER BY at DESC, rowid DESC LIMIT ?)",
+                (version, _PRIORS),
+            )
+
+    @_guarded
+    def overrides_among(self, keys: pl.Series) -> dict[str, dict]:
+        """The stored decisions of ``keys``, by key (``overrides``, for many keys at once)."""
+        import polars as pl
+
+        if self.conn.execute("SELECT NOT EXISTS (SELECT 1 FROM override)").fetchone()[0]:
+            return {}
+        keys = keys.drop_nulls().unique()
+        if not self._scan_rather("override", keys.len()):
+            return self.overrides(keys.to_list())
+        every = self.overrides()
+        stored = pl.Series(list(every), dtype=pl.String)
+        wanted = set(stored.filter(stored.is_in(keys.implode())).to_list())
+        return {k: d for k, d in every.items() if k in wanted}
 
     # -- human decisions ------------------------------------------------------
     @_guarded

@@ -1,12 +1,16 @@
 """Clean a whole file: distinct strings first, the answer pipeline, join back.
 
-Pass 1 streams the location column and counts its distinct values. Their keys
-go through the answer pipeline (``answers.resolve_keys``: cache, cascade for
-the misses in chunks committed as they finish, people's decisions, the file
-prior, the optional remote stage, the accept threshold). Pass 2 streams the
-file again, appends the geo columns and writes a temporary file that is
-renamed at the end. The output of an interrupted-and-resumed run is
-byte-identical to an uninterrupted one.
+Pass 1 reads the location column and counts its distinct values. They go
+through the answer pipeline as columns (``columnar.answer_table``: the
+cache's answers by raw text, the cascade for the misses in chunks committed
+as they finish, people's decisions, the file prior, the accept threshold); a
+run with a remote stage takes the same steps one answer at a time
+(``answers.resolve_keys``). Pass 2 joins the geo columns to every row and
+writes a temporary file that is renamed at the end. A CSV or TSV file up to
+``formats.IN_MEMORY_BYTES`` is read once for both passes; a larger file is
+streamed twice, so memory follows the distinct strings, not the rows. The
+output of an interrupted-and-resumed run is byte-identical to an
+uninterrupted one.
 """
 
 from __future__ import annotations
@@ -21,6 +25,8 @@ from dataclasses import asdict, dataclass, field
 from pathlib import Path
 from typing import Any, Protocol
 
+import polars as pl
+
 from ..errors import InputError
 from ..progress import Progress, no_progress, note
 from ..resolve.resolution import Status
@@ -28,14 +34,17 @@ from ..resolve.resolver import Resolver
 from ..version import __version__
 from .answers import Answers, count_keys, resolve_keys
 from .cache import Cache
+from .columnar import answer_table, with_keys
 from .engines import Engine, LocalEngine
 from .formats import (
     Source,
     Target,
     check_targets,
     check_writable_as,
-    count_values,
+    distinct_values,
     find_ragged,
+    geo_table,
+    hold,
     open_source,
     output_format,
     printable,
@@ -140,41 +149,57 @@ def clean_file(
     )
     try:
         out_fmt = output_format(str(output), options.format, source)
+        if out_fmt != "parquet":
+            hold(source, quiet=True)
         source = _checked(source, column, options, targets.get("bad_lines"), summary, progress)
         check_writable_as(source, out_fmt)
-        counts, summary.rows = count_values(source, column)
+        if out_fmt != "parquet":
+            hold(source)
+        values, summary.rows = distinct_values(source, column)
         for text in source.notes:
             note(progress, text)
         the_cache = Cache(cache) if isinstance(cache, (str, Path)) else cache
         resolver = resolver or Resolver(accept=options.accept, progress=lambda m: note(progress, m))
-        keys = {v: resolver.key(v) for v in counts}
-        key_counts = _sum_by_key(counts, keys)
-        note(progress, f"{summary.rows:,} rows, {len(key_counts):,} distinct strings")
-        answers = resolve_keys(
-            key_counts,
-            resolver=resolver,
-            cache=the_cache,
-            accept=options.accept,
-            engine=engine or LocalEngine(options.workers or os.cpu_count() or 1),
-            remote=options.remote,
-            progress=progress,
-        )
-        _take_counts(summary, answers, len(key_counts))
-        if options.remote is not None and options.remote.dry_run:
-            return summary
-        by_key = {k: GeoRow.of(r) for k, r in answers.results.items()}
-        mapping = {v: by_key[keys[v]] for v in counts}
-        status: Counter[str] = Counter()
-        for v, n in counts.items():
-            status[mapping[v].status] += n
+        engine = engine or LocalEngine(options.workers or os.cpu_count() or 1)
+        if options.remote is None:
+            table = answer_table(
+                values,
+                resolver=resolver,
+                cache=the_cache,
+                accept=options.accept,
+                engine=engine,
+                progress=progress,
+            )
+            summary.distinct = table.distinct
+            summary.cache_hits, summary.resolved = table.from_cache, table.resolved
+            summary.decided = table.decided
+            geo, status = table.by_value(), table.status_rows()
+            remote_used = ""
+        else:
+            keyed = with_keys(values, resolver, the_cache)
+            summary.distinct = keyed.get_column("key").n_unique()
+            note(progress, f"{summary.rows:,} rows, {summary.distinct:,} distinct strings")
+            answers = resolve_keys(
+                _rows_by_key(keyed),
+                resolver=resolver,
+                cache=the_cache,
+                accept=options.accept,
+                engine=engine,
+                remote=options.remote,
+                progress=progress,
+            )
+            _take_counts(summary, answers)
+            if options.remote.dry_run:
+                return summary
+            geo, status = _by_value(keyed, answers)
+            remote_used = answers.remote.get("provider", "") if answers.remote else ""
         names = geo_column_names(options.prefix)
-        write_output(source, column, mapping, names, out_fmt, targets["output"], summary.rows)
+        write_output(source, column, geo, names, out_fmt, targets["output"], summary.rows)
         if the_cache is not None and str(output) != "-":
-            provider = answers.remote.get("provider", "") if answers.remote else ""
-            the_cache.record_run(str(Path(output).resolve()), source.name, column, provider)
+            the_cache.record_run(str(Path(output).resolve()), source.name, column, remote_used)
     finally:
         source.cleanup()
-    summary.status = {s.value: status.get(s.value, 0) for s in Status}
+    summary.status = status
     summary.seconds = round(time.perf_counter() - started, 3)
     summary.output = str(output)
     summary.versions = _versions(resolver)
@@ -221,15 +246,24 @@ def _checked(
     return source
 
 
-def _sum_by_key(counts: dict[str | None, int], keys: dict[str | None, str]) -> Counter[str]:
-    key_counts: Counter[str] = Counter()
-    for v, n in counts.items():
-        key_counts[keys[v]] += n
-    return key_counts
+def _rows_by_key(keyed: pl.DataFrame) -> dict[str, int]:
+    """Rows per key, as ``resolve_keys`` takes them."""
+    by_key = keyed.group_by("key").agg(pl.col("rows").sum())
+    return dict(zip(by_key["key"].to_list(), by_key["rows"].to_list(), strict=True))
 
 
-def _take_counts(summary: CleanSummary, answers: Answers, distinct: int) -> None:
-    summary.distinct = distinct
+def _by_value(keyed: pl.DataFrame, answers: Answers) -> tuple[pl.DataFrame, dict[str, int]]:
+    """The geo table ``write_output`` takes, and rows per status, from answers by key."""
+    by_key = {k: GeoRow.of(r) for k, r in answers.results.items()}
+    mapping: dict[str | None, GeoRow] = {}
+    status: Counter[str] = Counter()
+    for value, n, key in keyed.select("value", "rows", "key").iter_rows():
+        mapping[value] = by_key[key]
+        status[mapping[value].status] += n
+    return geo_table(mapping), {s.value: status.get(s.value, 0) for s in Status}
+
+
+def _take_counts(summary: CleanSummary, answers: Answers) -> None:
     summary.cache_hits = answers.from_cache
     summary.resolved = answers.resolved
     summary.decided = answers.decided

@@ -4,9 +4,10 @@ The steps, and what travels between client and cluster:
 
 1. **distinct strings** — the workers read the partitions and count the
    location column's distinct values; only the counts come to the client;
-2. **answers** — the client maps the values to keys and runs the one answer
-   pipeline (``answers.resolve_keys``: cache, cascade for the misses,
-   decisions, file prior, settle). ``DaskEngine`` runs the cascade for the
+2. **answers** — the client runs the answer pipeline over the distinct values
+   as columns (``columnar.answer_table``: keys, cache, cascade for the misses,
+   decisions, file prior, settle), so it holds polars columns rather than a
+   Python object per string. ``DaskEngine`` runs the cascade for the
    misses on the workers in chunks; each worker process loads the place index
    once (a worker plugin, and a lazy load for workers that join later), and
    the client stores every chunk in its cache as it arrives — workers never
@@ -29,26 +30,26 @@ import math
 import os
 import threading
 import time
-from collections import Counter
 from collections.abc import Callable, Sequence
 from contextlib import ExitStack, nullcontext
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, NamedTuple
 
-import numpy as np
 import pandas as pd
+import polars as pl
+import pyarrow as pa
 
 from ..errors import InputError, PlaceIndexError
 from ..progress import Progress, no_progress, note
 from ..resolve.index import PlaceIndex, default_index_path
-from ..resolve.resolution import Resolution, Status
+from ..resolve.resolution import Resolution
 from ..resolve.resolver import DEFAULT_ACCEPT, Resolver
-from .answers import Answers, resolve_keys
 from .cache import Cache
 from .clean import CleanSummary
+from .columnar import AnswerTable, answer_table
 from .engines import CHUNK, Engine, LocalEngine, Take
 from .options import CleanOptions
-from .schema import GEO_FIELDS, NUMERIC_FIELDS, GeoRow, geo_column_names
+from .schema import GEO_FIELDS, NUMERIC_FIELDS, geo_column_names
 
 if TYPE_CHECKING:
     import dask.dataframe as dd
@@ -227,10 +228,11 @@ class DaskEngine:
         threads = sum(self.client.nthreads().values()) or 1
         # Small jobs are split finer, so every worker gets a share.
         size = max(1, min(self.chunk, math.ceil(len(keys) / (4 * threads))))
-        chunks = [list(keys[i : i + size]) for i in range(0, len(keys), size)]
+        # Made one at a time, as they are sent: the keys are not all Python strings at once.
+        chunks = (list(keys[i : i + size]) for i in range(0, len(keys), size))
         window = max(2, self.ahead * threads)
         args = (expected, self.index_path, resolver.accept)
-        todo = iter(chunks)
+        todo = chunks
         running = as_completed()
         pending: set[Any] = set()
 
@@ -262,32 +264,36 @@ def _as_text(values: pd.Series) -> pd.Series:
     return values.astype("string").fillna(NULL_KEY).astype(object)
 
 
-def _counts(ddf: dd.DataFrame, column: str) -> dict[str | None, int]:
-    """Distinct values of ``column`` with their row counts, counted on the cluster."""
+def _counts(ddf: dd.DataFrame, column: str) -> pl.DataFrame:
+    """Distinct values of ``column`` (``value``, missing as null) with their row counts
+    (``rows``), counted on the cluster; on the client as columns, not Python objects."""
     text = ddf[column].map_partitions(_as_text, meta=(column, object))
     # A tree of partial counts, no shuffle: the result comes to the client whole anyway.
     counted = text.value_counts(split_out=1).compute()
-    return {
-        (None if v == NULL_KEY else str(v)): int(n)
-        for v, n in zip(counted.index, counted.to_numpy(), strict=True)
-    }
+    values = pa.array(counted.index.to_numpy(), type=pa.large_string())
+    frame = pl.DataFrame(
+        {
+            "value": pl.from_arrow(values),
+            "rows": pl.Series(counted.to_numpy(), dtype=pl.Int64),
+        }
+    )
+    return frame.with_columns(pl.col("value").replace(NULL_KEY, None))
 
 
-def _answer_table(
-    counts: dict[str | None, int], keys: dict[str | None, str], answers: Answers, prefix: str
-) -> pd.DataFrame:
+def _answer_table(table: AnswerTable, prefix: str) -> pd.DataFrame:
     """One row per distinct value (``NULL_KEY`` for missing) with its geo columns."""
-    by_key = {k: GeoRow.of(r) for k, r in answers.results.items()}
-    rows = [by_key[keys[v]] for v in counts]
+    by_value = table.by_value()
     data: dict[str, Any] = {}
-    for i, (name, field) in enumerate(zip(geo_column_names(prefix), GEO_FIELDS, strict=True)):
-        column = [r[i] for r in rows]
+    for name, field in zip(geo_column_names(prefix), GEO_FIELDS, strict=True):
+        column = by_value.get_column(field)
         data[name] = (
-            np.array([np.nan if x is None else x for x in column], dtype=float)
+            column.cast(pl.Float64).fill_null(float("nan")).to_numpy()
             if field in NUMERIC_FIELDS
-            else pd.array(column, dtype=pd.StringDtype("pyarrow"))  # compact, fast to take
+            else pd.array(column.to_arrow(), dtype=pd.StringDtype("pyarrow"))  # compact, fast
         )
-    index = pd.Index([NULL_KEY if v is None else v for v in counts], dtype=object)
+    values = by_value.get_column("value").fill_null(NULL_KEY)
+    # Text held by Arrow, not a Python string per value: compact here and in the graph.
+    index = pd.Index(pd.array(values.to_arrow(), dtype=pd.StringDtype("pyarrow")))
     return pd.DataFrame(data, index=index)
 
 
@@ -308,10 +314,7 @@ def _join_partition(part: pd.DataFrame, table: pd.DataFrame, column: str) -> pd.
 
 class _Prepared(NamedTuple):
     joined: dd.DataFrame  # lazy: the input with the geo columns
-    counts: dict[str | None, int]  # rows per distinct value
-    keys: dict[str | None, str]  # cache key per distinct value
-    answers: Answers
-    resolver: Resolver
+    summary: CleanSummary  # its figures (the answers themselves are in ``joined``)
 
 
 def _default_client() -> Client | None:
@@ -345,22 +348,20 @@ def _prepare(
         engine.start(resolver)  # a worker with other versions stops the run before any work
     note(progress, "counting distinct strings on the cluster")
     with client.as_current() if client is not None else nullcontext():
-        counts = _counts(ddf, column)
-    keys = {v: resolver.key(v) for v in counts}
-    key_counts: Counter[str] = Counter()
-    for v, n in counts.items():
-        key_counts[keys[v]] += n
-    note(progress, f"{sum(counts.values()):,} rows, {len(key_counts):,} distinct strings")
-    answers = resolve_keys(
-        key_counts, resolver=resolver, cache=cache, accept=accept, engine=engine, progress=progress
+        values = _counts(ddf, column)
+    answers = answer_table(
+        values, resolver=resolver, cache=cache, accept=accept, engine=engine, progress=progress
     )
-    table = _answer_table(counts, keys, answers, prefix)
+    del values
+    table = _answer_table(answers, prefix)
+    summary = _summary(answers, resolver)
+    del answers  # the client keeps only the table the workers receive
     meta = _join_partition(ddf._meta, table.iloc[:0], column)
     # Every partition depends on the same graph key, so each worker receives the table once.
-    # It is never bigger than what the client holds already: the pipeline needs every
-    # answer at once (the file prior weighs them all).
+    # It holds one row per distinct string: the pipeline needs every answer at once (the
+    # file prior weighs them all), and only distinct strings and answers travel.
     joined = ddf.map_partitions(_join_partition, dask.delayed(table), column, meta=meta)
-    return _Prepared(joined, counts, keys, answers, resolver)
+    return _Prepared(joined, summary)
 
 
 def clean_frame(
@@ -577,7 +578,7 @@ def clean_dataset(
             the_cache.record_run(
                 str(Path(output).resolve()) if local else str(output), str(input), column
             )
-    summary = _summary(prepared)
+    summary = prepared.summary
     summary.seconds = round(time.perf_counter() - started, 3)
     summary.output = str(output)
     if options.report:
@@ -614,21 +615,17 @@ def _connect(scheduler: str | None, workers: int | None, stack: ExitStack) -> Cl
     return stack.enter_context(Client(cluster))
 
 
-def _summary(prepared: _Prepared) -> CleanSummary:
+def _summary(table: AnswerTable, resolver: Resolver) -> CleanSummary:
     from ..version import __version__
 
-    answers, resolver = prepared.answers, prepared.resolver
-    status: Counter[str] = Counter()
-    for v, n in prepared.counts.items():
-        status[answers.results[prepared.keys[v]].status.value] += n
     meta = resolver.index.meta
     return CleanSummary(
-        rows=sum(prepared.counts.values()),
-        distinct=len(set(prepared.keys.values())),
-        cache_hits=answers.from_cache,
-        resolved=answers.resolved,
-        decided=answers.decided,
-        status={s.value: status.get(s.value, 0) for s in Status},
+        rows=int(table.values.get_column("rows").sum()),
+        distinct=table.distinct,
+        cache_hits=table.from_cache,
+        resolved=table.resolved,
+        decided=table.decided,
+        status=table.status_rows(),
         versions={
             "geonorm": __version__,
             "resolver": resolver.version,

@@ -49,10 +49,14 @@ __all__ = [
     "check_targets",
     "check_writable_as",
     "count_values",
+    "distinct_values",
     "find_ragged",
+    "geo_table",
+    "hold",
     "lazy_table",
     "open_source",
     "output_format",
+    "per_distinct",
     "printable",
     "quoted",
     "read_columns",
@@ -85,6 +89,9 @@ _MAGIC = {
     b"SQLite format 3": "an SQLite database",
 }
 _HEAD = 8192  # bytes read to tell what a file is
+# A CSV or TSV file up to this size is read into memory once for both passes (counting
+# and writing); a larger one is streamed twice, so memory follows its distinct values.
+IN_MEMORY_BYTES = 128 << 20
 # Control bytes other than tab, line feed and carriage return. Text holds almost none;
 # random or binary data about one byte in nine (30 of 256 values). More than one in
 # twenty, and at least four, means binary (from memory, not tuned).
@@ -116,6 +123,7 @@ class Source:
     temp: list[Path] = field(default_factory=list)
     columns: list[str] | None = None  # the header, once read
     notes: list[str] = field(default_factory=list)  # what reading did that a user should know
+    frame: pl.DataFrame | None = None  # the whole table, read once, when it is small (``hold``)
 
     def cleanup(self) -> None:
         for p in self.temp:
@@ -605,6 +613,8 @@ def output_format(output: str, given: str | None, source: Source) -> str:
 
 
 def _scan(source: Source) -> pl.LazyFrame:
+    if source.frame is not None:
+        return source.frame.lazy()
     if source.format == "parquet":
         return pl.scan_parquet(source.path, glob=False)
     return pl.scan_csv(
@@ -902,6 +912,46 @@ def count_values(source: Source, column: str) -> tuple[dict[str | None, int], in
     return dict(zip(values, lens, strict=False)), int(sum(lens))
 
 
+def hold(source: Source, *, quiet: bool = False) -> None:
+    """Read a small CSV or TSV table into memory once (``IN_MEMORY_BYTES``): the checks and
+    both passes then read it from there. (Not for a Parquet output: how the streaming
+    engine cuts a file into row groups follows how it read the input, and the bytes
+    written must not depend on where the input was read from.) ``quiet``: a table that
+    cannot be read whole stays on disk, for the checks to name its problem."""
+    if (
+        source.frame is not None
+        or source.format not in ("csv", "tsv")
+        or source.path.stat().st_size > IN_MEMORY_BYTES
+    ):
+        return
+    try:
+        source.frame = _scan(source).collect()
+    except _POLARS_ERRORS as exc:
+        if not quiet:
+            raise _polars_error(source, exc) from exc
+
+
+def distinct_values(source: Source, column: str) -> tuple[pl.DataFrame, int]:
+    """Distinct values of ``column`` (``value``, missing as null) with their row counts
+    (``rows``), and the row count."""
+    if source.format == "jsonl":
+        counts, total = count_values(source, column)
+        frame = pl.DataFrame(
+            {"value": list(counts), "rows": list(counts.values())},
+            schema={"value": pl.String, "rows": pl.Int64},
+        )
+        return frame, total
+    if source.format == "parquet":
+        _refuse_nested_location(source, column)
+    try:
+        lf = _scan(source).select(pl.col(column).cast(pl.String).alias("value"))
+        counted = lf.group_by("value").agg(pl.len().cast(pl.Int64).alias("rows"))
+        frame = counted.collect(engine="in-memory" if source.frame is not None else "streaming")
+    except _POLARS_ERRORS as exc:
+        raise _polars_error(source, exc) from exc
+    return frame, int(frame.get_column("rows").sum())
+
+
 def find_ragged(source: Source, expected: int) -> list[int]:
     """Line numbers of CSV records whose field count differs from the header's.
 
@@ -909,6 +959,15 @@ def find_ragged(source: Source, expected: int) -> list[int]:
     candidates; only if there are any does an exact CSV parse confirm them.
     """
     if source.format not in ("csv", "tsv"):
+        return []
+    held = source.frame
+    if (
+        held is not None
+        and held.width == expected
+        and not held.get_column(held.columns[-1]).has_nulls()
+    ):
+        # Read whole: a longer record fails the read, and a shorter one leaves its last
+        # field missing. With no missing last field, every record has the header's count.
         return []
     try:
         lines = pl.scan_csv(
@@ -1043,21 +1102,76 @@ def check_writable_as(source: Source, out_fmt: str) -> None:
 def write_output(
     source: Source,
     column: str,
-    mapping: Mapping[str | None, GeoRow],
+    geo: pl.DataFrame,
     geo_names: list[str],
     out_fmt: str,
     target: Target,
     rows: int,
 ) -> None:
     """Write every input row with the geo columns appended to ``target``, through a partial file
-    put in place at the end; stop, replacing nothing, unless it holds exactly ``rows`` rows."""
+    put in place at the end; stop, replacing nothing, unless it holds exactly ``rows`` rows.
+
+    ``geo`` has one row per distinct location value: ``value`` (missing as null) and the
+    ``GEO_FIELDS`` with their types (``geo_table`` makes it from ``GeoRow`` values)."""
     check_writable_as(source, out_fmt)
     with writing(target) as tmp:
         if source.format == "jsonl":
-            _write_from_jsonl(source, column, mapping, geo_names, out_fmt, tmp)
+            _write_from_jsonl(source, column, _mapping_of(geo), geo_names, out_fmt, tmp)
         else:
-            _write_polars(source, column, mapping, geo_names, out_fmt, tmp)
+            _write_polars(source, column, geo, geo_names, out_fmt, tmp)
         _check_rows(_count_rows(tmp, out_fmt), rows, target.given)
+
+
+def geo_table(mapping: Mapping[str | None, GeoRow]) -> pl.DataFrame:
+    """The table ``write_output`` takes, from each distinct value's ``GeoRow``."""
+    frame = _geo_frame(mapping, list(GEO_FIELDS), typed=True)
+    return frame.insert_column(0, pl.Series("value", list(mapping), dtype=pl.String))
+
+
+def _mapping_of(geo: pl.DataFrame) -> dict[str | None, GeoRow]:
+    rows = (GeoRow(*r) for r in geo.select(GEO_FIELDS).iter_rows())
+    return dict(zip(geo.get_column("value").to_list(), rows, strict=True))
+
+
+def per_distinct(values: pl.Series, fn: Callable[[float], Any], dtype: Any) -> pl.Series:
+    """``fn`` of each number of ``values`` (missing stays missing), called once per distinct
+    number. Numbers are told apart by their shortest text, which names one float exactly
+    (so -0.0 and 0.0 stay apart)."""
+    texts = values.cast(pl.String)
+    distinct = texts.drop_nulls().unique()
+    done = [fn(float(t)) for t in distinct.to_list()]
+    return texts.replace_strict(distinct, done, default=None, return_dtype=dtype).alias(values.name)
+
+
+# Decimals of the numbers in a text format (as ``as_text_row`` writes them).
+_DECIMALS = {"lat": 5, "lon": 5, "confidence": 3}
+
+
+def _text_column(values: pl.Series, decimals: int) -> pl.Series:
+    """Numbers as text with fixed ``decimals``, missing as empty (``as_text_row``'s way).
+
+    A number whose shortest text has at most ``decimals`` decimals (and that is below
+    1e9, so one unit in its last place is far below half of the last decimal) is that
+    text padded with zeros, exactly what Python's fixed-point format writes; the rest go
+    through Python's format, once per distinct number.
+    """
+    t = pl.col("t")
+    digits = t.str.len_bytes() - t.str.find(".", literal=True) - 1
+    frame = pl.DataFrame({"x": values.cast(pl.Float64)}).with_columns(t=pl.col("x").cast(pl.String))
+    frame = frame.with_columns(
+        shown=(
+            t.str.contains(r"^-?[0-9]+\.[0-9]+$") & (pl.col("x").abs() < 1e9) & (digits <= decimals)
+        ).fill_null(False)
+    )
+    rest = frame.filter(~pl.col("shown") & t.is_not_null()).get_column("t").unique()
+    done = [f"{float(x):.{decimals}f}" for x in rest.to_list()]
+    padded = pl.concat_str([t, pl.lit("0" * decimals).str.slice(0, decimals - digits)])
+    written = (
+        pl.when(pl.col("shown"))
+        .then(padded)
+        .otherwise(t.replace_strict(rest, done, default=None, return_dtype=pl.String))
+    )
+    return frame.select(written.fill_null("").alias(values.name)).to_series()
 
 
 def as_text_row(geo: GeoRow) -> list[str]:
@@ -1094,34 +1208,49 @@ def _geo_frame(
     return pl.DataFrame(data, schema=schema)
 
 
-def _mapping_frame(
-    mapping: Mapping[str | None, GeoRow], geo_names: list[str], typed: bool, key: str
+def _join_table(
+    geo: pl.DataFrame, geo_names: list[str], typed: bool, key: pl.Series
 ) -> pl.DataFrame:
-    keys = pl.Series(key, [_join_key(k) for k in mapping], dtype=pl.String)
-    return _geo_frame(mapping, geo_names, typed).insert_column(0, keys)
+    """The geo columns, named ``geo_names``, beside the join ``key`` of each distinct value."""
+    columns = [key]
+    for name, geo_field in zip(geo_names, GEO_FIELDS, strict=True):
+        column = geo.get_column(geo_field)
+        if not typed and geo_field in _DECIMALS:
+            column = _text_column(column, _DECIMALS[geo_field])
+        columns.append(column.alias(name))
+    return pl.DataFrame(columns)
 
 
 def _write_polars(
     source: Source,
     column: str,
-    mapping: Mapping[str | None, GeoRow],
+    geo: pl.DataFrame,
     geo_names: list[str],
     out_fmt: str,
     tmp: Path,
 ) -> None:
     lf = _scan(source)
+    typed = out_fmt in ("parquet", "jsonl")
     try:
-        names = set(lf.collect_schema().names())
-        key = "__geo_key"
-        while key in names:
-            key += "_"
-        table = _mapping_frame(mapping, geo_names, out_fmt in ("parquet", "jsonl"), key).lazy()
-        value = pl.concat_str([pl.lit("="), pl.col(column).cast(pl.String)]).fill_null("")
-        joined = (
-            lf.with_columns(value.alias(key))
-            .join(table, on=key, how="left", maintain_order="left")
-            .drop(key)
-        )
+        schema = lf.collect_schema()
+        values = geo.get_column("value")
+        if schema[column] == pl.String:  # joined on the text itself: missing meets missing
+            table = _join_table(geo, geo_names, typed, values.alias(column))
+            joined = lf.join(
+                table.lazy(), on=column, how="left", maintain_order="left", nulls_equal=True
+            )
+        else:  # joined on its text: "=" and the text, missing as "" (``_join_key``)
+            key = "__geo_key"
+            while key in schema:
+                key += "_"
+            keys = pl.Series(key, [_join_key(v) for v in values.to_list()], dtype=pl.String)
+            table = _join_table(geo, geo_names, typed, keys)
+            value = pl.concat_str([pl.lit("="), pl.col(column).cast(pl.String)]).fill_null("")
+            joined = (
+                lf.with_columns(value.alias(key))
+                .join(table.lazy(), on=key, how="left", maintain_order="left")
+                .drop(key)
+            )
         if out_fmt == "parquet":
             joined.sink_parquet(tmp, maintain_order=True)
         elif out_fmt == "jsonl":

@@ -23,7 +23,8 @@ from __future__ import annotations
 import math
 from collections import defaultdict
 from collections.abc import Iterable, Iterator, Mapping, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, field
+from operator import attrgetter
 
 from .index import Place
 from .mentions import code_text, cue_roles, ordinary_text, text_language, word_zipf
@@ -99,8 +100,11 @@ def _top(shares: Mapping[str, float]) -> str:
     return max(shares, key=lambda c: (shares[c], c))
 
 
+_WEIGHT = attrgetter("weight")
+
+
 def _heaviest(readings: Iterable[Reading]) -> Reading | None:
-    return max(readings, key=lambda r: r.weight, default=None)
+    return max(readings, key=_WEIGHT, default=None)
 
 
 @dataclass
@@ -192,11 +196,11 @@ def _joined(g: Group, m: Mention) -> Mention | None:
     """
     containers = _containers_of(g, m)
     if containers:
-        return replace(m, readings=containers)
+        return m.with_readings(containers)
     gids = {r.place.id for r in g.readings}
     same = [r for r in m.readings if r.place.id in gids]
     if same:
-        return replace(m, readings=same)
+        return m.with_readings(same)
     return None
 
 
@@ -263,7 +267,7 @@ def _container_constraints(containers: list[Mention]) -> tuple[set[str] | None, 
         ccs |= {c for c, s in SOVEREIGN.items() if s in ccs}
         if ccs:
             allowed_cc = ccs if allowed_cc is None else (allowed_cc & ccs) or allowed_cc
-        heaviest = max(m.readings, key=lambda r: r.weight)
+        heaviest = max(m.readings, key=_WEIGHT)
         if heaviest.place.kind in ("subdivision", "area"):
             allowed_sub |= {r.place.sub for r in m.readings if r.place.kind == "subdivision"}
     return allowed_cc, allowed_sub
@@ -288,8 +292,9 @@ def _combine(kept: list[list[Reading]]) -> dict[str, float]:
         if not d:
             continue
         # Territories inherit their sovereign's qualifier: "Hong Kong, China".
-        for terr, sov in SOVEREIGN.items():
-            if sov in d and terr in dist and terr not in d:
+        for terr in dist:
+            sov = SOVEREIGN.get(terr)
+            if sov is not None and sov in d and terr not in d:
                 d[terr] = d[sov]
         if not dist:
             dist = d
@@ -544,7 +549,7 @@ def _findings(places: list[Weighed], top: str) -> _Findings:
                 if len({r.place.cc for r in rs if r.place.kind == "city"}) > 1:
                     found.ambiguous_points = True
         if group_points:
-            found.points.append(max(group_points, key=lambda r: r.weight))
+            found.points.append(max(group_points, key=_WEIGHT))
     return found
 
 

@@ -9,6 +9,9 @@ from __future__ import annotations
 
 import sqlite3
 import threading
+from array import array
+from bisect import bisect_left, bisect_right
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
@@ -17,7 +20,19 @@ from ..errors import PlaceIndexError
 from ..paths import data_dir, gazetteer_dir
 from .build import build_index
 from .build.builder import Progress
-from .build.layout import INDEX_VERSION, ORIGINS, default_index_path
+from .build.layout import (
+    INDEX_VERSION,
+    KINDS,
+    NO_GID,
+    ORIGINS,
+    StringColumn,
+    default_index_path,
+    from_le,
+    key_hash,
+    unpack_fuzzy,
+    unpack_hit,
+    unpack_hits,
+)
 
 __all__ = [
     "INDEX_VERSION",
@@ -25,6 +40,7 @@ __all__ = [
     "NameHit",
     "Place",
     "PlaceIndex",
+    "TypoTargets",
     "build_index",
     "data_dir",
     "default_index_path",
@@ -82,14 +98,19 @@ class PlaceIndex:
         self.postcodes = dict(db.execute("SELECT prefix, place FROM postcode").fetchall())
         self._places: dict[int, Place] = {}
         self.countries: dict[str, Place] = {}
-        for row in db.execute("SELECT * FROM place WHERE kind IN ('country', 'subdivision')"):
+        containers = "SELECT * FROM place WHERE kind IN ('country', 'subdivision') ORDER BY id"
+        for row in db.execute(containers):
             p = Place(*row)
             self._places[p.id] = p
             if p.kind == "country":
                 self.countries[p.cc] = p
         self.subdivisions = {p.sub: p for p in self._places.values() if p.kind == "subdivision"}
-        self._fuzzy_blocks: dict[str, dict[int, tuple[list[str], list[tuple[int, str]]]]] = {}
+        # Per first letter: the keys by length, their lengths, their hit codes.
+        self._fuzzy_blocks: dict[str, tuple[list[str], list[int], array]] = {}
         self._lock = threading.Lock()
+        self._names: _NameTable | None = None
+        self._lookups = 0
+        self._columns: _PlaceColumns | None = None
 
     def _db(self) -> sqlite3.Connection:
         db = getattr(self._local, "db", None)
@@ -103,17 +124,55 @@ class PlaceIndex:
         self._local = threading.local()
         self._lock = threading.Lock()
 
+    def load_tables(self) -> None:
+        """Load the packed name and place tables now, not at the first lookups (a pool
+        forked afterwards shares them)."""
+        self._name_table()
+        self.place(1)
+        self._lookups = QUERIED_LOOKUPS
+
+    def _blob(self, name: str) -> bytes:
+        """One of the packed tables (``build.layout``), or b'' when there is none."""
+        row = self._db().execute("SELECT data FROM packed WHERE name = ?", (name,)).fetchone()
+        return row[0] if row else b""
+
+    def _name_table(self) -> _NameTable:
+        names = self._names
+        if names is None:
+            with self._lock:
+                if self._names is None:
+                    self._names = _NameTable(self._blob("name_slots"), self._blob("name_records"))
+                names = self._names
+        return names
+
     def place(self, pid: int) -> Place:
         p = self._places.get(pid)
         if p is None:
-            row = self._db().execute("SELECT * FROM place WHERE id=?", (pid,)).fetchone()
-            p = Place(*row)
+            columns = self._columns
+            if columns is None:
+                with self._lock:
+                    if self._columns is None:
+                        self._columns = _PlaceColumns(self._blob)
+                    columns = self._columns
+            p = columns.place(pid)
             self._places[pid] = p
         return p
 
-    @lru_cache(maxsize=300_000)  # noqa: B019 - the index lives as long as the process
+    @lru_cache(maxsize=100_000)  # noqa: B019 - the index lives as long as the process
     def lookup(self, key: str) -> tuple[NameHit, ...]:
-        """All places whose folded name equals ``key``, with the name's origin."""
+        """All places whose folded name equals ``key``, with the name's origin (in the
+        order of the name table: by place id).
+
+        The first ``QUERIED_LOOKUPS`` names are queried from SQLite, so that a process
+        that looks up a few names never loads the packed tables; later ones are read
+        from them in memory. Both give the same answer.
+        """
+        self._lookups += 1
+        if self._lookups <= QUERIED_LOOKUPS:
+            return self._query(key)
+        return tuple(NameHit(self.place(pid), origin) for pid, origin in self._name_table()[key])
+
+    def _query(self, key: str) -> tuple[NameHit, ...]:
         rows = (
             self._db()
             .execute(
@@ -122,42 +181,112 @@ class PlaceIndex:
             )
             .fetchall()
         )
-        hits = []
-        for row in rows:
-            p = self._places.get(row[0]) or Place(*row[:10])
-            hits.append(NameHit(p, ORIGINS[row[10]]))
-        return tuple(hits)
+        return tuple(
+            NameHit(self._places.get(r[0]) or Place(*r[:10]), ORIGINS[r[10]]) for r in rows
+        )
 
     @lru_cache(maxsize=4096)  # noqa: B019 - the index lives as long as the process
-    def fuzzy_block(
-        self, first: str, length: int, spread: int
-    ) -> tuple[list[str], list[tuple[int, str]]]:
+    def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], TypoTargets]:
         """Names typo matching may reach: starting with ``first``, within ``spread`` of ``length``
         characters; with their (place, origin)."""
         with self._lock:
-            by_length = self._fuzzy_blocks.get(first)
-            if by_length is None:
-                rows = (
-                    self._db()
-                    .execute("SELECT key, place, origin FROM fuzzy WHERE block = ?", (first,))
-                    .fetchall()
-                )
-                by_length = {}
-                for key, place, origin in rows:
-                    keys, targets = by_length.setdefault(len(key), ([], []))
-                    keys.append(key)
-                    targets.append((place, ORIGINS[origin]))
-                self._fuzzy_blocks[first] = by_length
-        keys, targets = [], []
-        for n in range(length - spread, length + spread + 1):
-            if n in by_length:
-                keys.extend(by_length[n][0])
-                targets.extend(by_length[n][1])
-        return keys, targets
+            block = self._fuzzy_blocks.get(first)
+            if block is None:
+                blob = self._blob(f"fuzzy:{first}")
+                keys, codes = unpack_fuzzy(blob) if blob else ([], array("I"))
+                block = self._fuzzy_blocks[first] = (keys, [len(k) for k in keys], codes)
+        keys, lengths, codes = block
+        start = bisect_left(lengths, length - spread)
+        end = bisect_right(lengths, length + spread)
+        return keys[start:end], TypoTargets(codes[start:end])
 
     def __hash__(self) -> int:  # for lru_cache on methods
         return id(self)
 
+
+class TypoTargets:
+    """The (place id, origin) of each name of a typo block, decoded when asked for."""
+
+    def __init__(self, codes: array) -> None:
+        self.codes = codes
+
+    def __getitem__(self, i: int) -> tuple[int, str]:
+        return unpack_hit(self.codes[i])
+
+    def __len__(self) -> int:
+        return len(self.codes)
+
+    def __iter__(self) -> Iterator[tuple[int, str]]:
+        return map(unpack_hit, self.codes)
+
+
+class _NameTable:
+    """The packed name table (``build.layout``): folded name → (place id, origin) pairs,
+    an open-addressing hash table over two byte strings, looked up without a query."""
+
+    def __init__(self, slots: bytes, records: bytes) -> None:
+        self.slots = from_le("I", slots)
+        self.mask = len(self.slots) - 1
+        self.records = records
+
+    def __getitem__(self, key: str) -> tuple[tuple[int, str], ...]:
+        encoded = key.encode("utf-8", "surrogatepass")
+        records, slots, mask, n = self.records, self.slots, self.mask, len(encoded)
+        if not slots:
+            return ()
+        i = key_hash(encoded) & mask
+        while at := slots[i]:
+            length = records[at] | records[at + 1] << 8
+            if length == n and records[at + 2 : at + 2 + n] == encoded:
+                return unpack_hits(records, at + 2 + n)
+            i = (i + 1) & mask
+        return ()
+
+
+class _PlaceColumns:
+    """The packed place table (``build.layout``): one column per field, a place built
+    when first asked for."""
+
+    def __init__(self, blob: Callable[[str], bytes]) -> None:
+        self.kind = blob("place_kind")
+        self.cc = StringColumn(blob("place_cc"))
+        self.sub = StringColumn(blob("place_sub"))
+        self.name = StringColumn(blob("place_name"))
+        self.lat = from_le("d", blob("place_lat"))
+        self.lon = from_le("d", blob("place_lon"))
+        self.pop = from_le("q", blob("place_pop"))
+        self.gid = from_le("q", blob("place_gid"))
+        self.fame = from_le("q", blob("place_fame"))
+
+    def place(self, pid: int) -> Place:
+        i = pid - 1
+        if not 0 <= i < len(self.kind):
+            raise PlaceIndexError(
+                f"the place index has no place {pid}", hint="rebuild it: geonorm gazetteer build"
+            )
+        lat, lon, gid = self.lat[i], self.lon[i], self.gid[i]
+        return Place(
+            pid,
+            KINDS[self.kind[i]],
+            _text(self.cc, i),
+            _text(self.sub, i),
+            _text(self.name, i),
+            None if lat != lat else lat,  # NaN: no coordinates
+            None if lon != lon else lon,
+            self.pop[i],
+            None if gid == NO_GID else gid,
+            self.fame[i],
+        )
+
+
+def _text(column: StringColumn, i: int) -> str:
+    ends = column.ends
+    return column.text[ends[i - 1] if i else 0 : ends[i]].decode("utf-8")
+
+
+# Names looked up with a query before the packed name table is loaded (which takes
+# a few tens of milliseconds): enough for a single lookup from the command line.
+QUERIED_LOOKUPS = 64
 
 _loaded: dict[Path, PlaceIndex] = {}
 _load_lock = threading.Lock()

@@ -14,10 +14,14 @@ from __future__ import annotations
 
 import math
 import re
+import struct
+import sys
 from array import array
+from bisect import bisect_left
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import replace
 from functools import lru_cache
+from operator import attrgetter
 
 from .normalize import Part, Query, fold
 from .stages import FuzzyMatcher, Mention, Reading, Span
@@ -49,6 +53,7 @@ __all__ = [
     "code_text",
     "cue_roles",
     "gather",
+    "load_words",
     "merge_by_span",
     "ordinary_text",
     "place_prior",
@@ -57,6 +62,7 @@ __all__ = [
     "word_zipf",
 ]
 
+_WEIGHT = attrgetter("weight")
 # Where a mention sits: (part, first word, text).
 SpanKey = tuple[int, int, str]
 # A word of the text: (part, word).
@@ -101,7 +107,7 @@ def merge_by_span(mentions: Iterable[Mention]) -> dict[SpanKey, Mention]:
         if key in by_span:
             by_span[key].readings.extend(m.readings)
         else:
-            by_span[key] = replace(m, readings=list(m.readings))
+            by_span[key] = m.with_readings(list(m.readings))
     return by_span
 
 
@@ -305,7 +311,7 @@ def prune(mentions: list[Mention]) -> list[Mention]:
         for rule in PRUNE_RULES:
             readings = rule(readings, several)
         if readings:
-            out.append(replace(m, readings=readings))
+            out.append(m.with_readings(readings))
     return out
 
 
@@ -315,6 +321,7 @@ def prune(mentions: list[Mention]) -> list[Mention]:
 LANGUAGES = ("en", "es", "pt", "fr", "de", "it", "nl")
 # Words that make a phrase a description ("the valley"), not a name.
 _ARTICLES = frozenset({"the", "a", "an"})
+_NOT_CONTENT = STOPWORDS | _ARTICLES
 # Codes: trusted only when typed in capitals.
 _CODE_ORIGINS = frozenset({"code2", "code3", "postal", "sub_code", "abbreviation"})
 # Name origins that are curated or gated by casing elsewhere: never ordinary words.
@@ -324,20 +331,55 @@ _TRUSTED_ORIGINS = frozenset(
 
 
 class _ZipfTable:
-    """Word → Zipf value in each of ``LANGUAGES``: the words joined by newlines, and one
-    flat array of doubles, ``len(LANGUAGES)`` per word."""
+    """Word → Zipf value in each of ``LANGUAGES``: the words, sorted and joined by
+    newlines, and one flat run of doubles, ``len(LANGUAGES)`` per word.
 
-    def __init__(self, words: str, values: bytes) -> None:
-        self.row = {w: i for i, w in enumerate(words.split("\n"))}
-        self.values = array("d")
-        self.values.frombytes(values)
+    The first ``SEARCHED_WORDS`` words are searched for in the text itself, so that a
+    process that reads a few words (one lookup) does not split the list; later ones
+    are found by bisection in the sorted list. Both find the same row.
+    """
+
+    def __init__(self, words: str, values: bytes | memoryview) -> None:
+        self.text = f"\n{words}\n"
+        self.sorted: list[str] | None = None
+        self.searched = 0
+        self.values = values
+        self.row = struct.Struct(f"<{len(LANGUAGES)}d")
 
     def get(self, word: str) -> tuple[float, ...]:
-        i = self.row.get(word)
-        if i is None:
+        i = self._row(word)
+        if i < 0:
             return _NOT_A_WORD
-        n = len(LANGUAGES)
-        return tuple(self.values[i * n : (i + 1) * n])
+        return self.row.unpack_from(self.values, i * self.row.size)
+
+    def _row(self, word: str) -> int:
+        if self.sorted is None and self.searched < SEARCHED_WORDS:
+            self.searched += 1
+            at = self.text.find(f"\n{word}\n")
+            return -1 if at < 0 else self.text.count("\n", 0, at)
+        if self.sorted is None:
+            self.sorted = self.text[1:-1].split("\n")
+        i = bisect_left(self.sorted, word)
+        return i if i < len(self.sorted) and self.sorted[i] == word else -1
+
+
+SEARCHED_WORDS = 16  # words searched in the text before the list is split (see _ZipfTable)
+_TABLE_FORMAT = 2  # of the file the merged lists are kept in (see _zipf_table)
+
+
+def _wordfreq_version() -> str:
+    """The installed wordfreq's version, from its ``.dist-info`` folder name when there
+    is one on the path (importing ``importlib.metadata`` costs more than the table)."""
+    import glob
+    import os
+
+    for folder in sys.path:
+        found = glob.glob(os.path.join(glob.escape(folder or "."), "wordfreq-*.dist-info"))
+        if len(found) == 1:
+            return os.path.basename(found[0])[len("wordfreq-") : -len(".dist-info")]
+    from importlib.metadata import version
+
+    return version("wordfreq")
 
 
 @lru_cache(maxsize=1)
@@ -346,20 +388,23 @@ def _zipf_table() -> _ZipfTable:
 
     Reading seven lists costs more than half a second per process, so the merged
     table is kept beside the place index (``wordfreq-<version>-….bin`` in the data
-    folder, written once, atomically) and loaded from there in a few milliseconds.
+    folder, written once, atomically) and loaded from there in a few milliseconds:
+    the length of the words' UTF-8 text (8 bytes, little-endian), that text, then
+    the values as little-endian doubles.
     """
-    import marshal
     import os
-    from importlib.metadata import version
 
     from ..paths import data_dir
 
-    path = data_dir() / f"wordfreq-{version('wordfreq')}-{'-'.join(LANGUAGES)}.bin"
+    languages = "-".join(LANGUAGES)
+    path = data_dir() / f"wordfreq-{_wordfreq_version()}-{languages}-{_TABLE_FORMAT}.bin"
     try:
-        with open(path, "rb") as fh:
-            words, values = marshal.load(fh)
-        return _ZipfTable(words, values)
-    except (OSError, EOFError, ValueError, TypeError):
+        data = path.read_bytes()
+        (size,) = struct.unpack_from("<Q", data)
+        values = memoryview(data)[8 + size :]
+        if len(values) % (8 * len(LANGUAGES)) == 0:
+            return _ZipfTable(data[8 : 8 + size].decode("utf-8"), values)
+    except (OSError, struct.error, UnicodeDecodeError):
         pass
     from wordfreq import get_frequency_dict
 
@@ -369,19 +414,26 @@ def _zipf_table() -> _ZipfTable:
         "d",
         (math.log10(f[w]) + 9 if f.get(w, 0) > 0 else 0.0 for w in ordered for f in lists),
     )
-    packed = ("\n".join(ordered), flat.tobytes())
+    if sys.byteorder == "big":
+        flat.byteswap()
+    words = "\n".join(ordered)
+    encoded = words.encode("utf-8")
     try:
         path.parent.mkdir(parents=True, exist_ok=True)
         tmp = path.with_suffix(f".{os.getpid()}.tmp")
-        with open(tmp, "wb") as fh:
-            marshal.dump(packed, fh)
+        tmp.write_bytes(struct.pack("<Q", len(encoded)) + encoded + flat.tobytes())
         os.replace(tmp, path)
     except OSError:
         pass  # a read-only data folder: the lists are read again next time
-    return _ZipfTable(*packed)
+    return _ZipfTable(words, flat.tobytes())
 
 
 _NOT_A_WORD = (0.0,) * len(LANGUAGES)
+
+
+def load_words() -> None:
+    """Load the word table now, not at the first word (a pool forked afterwards shares it)."""
+    _zipf_table()
 
 
 @lru_cache(maxsize=100_000)
@@ -389,6 +441,12 @@ def word_zipf(word: str) -> tuple[float, ...]:
     """How common ``word`` (as typed, any case) is in each of ``LANGUAGES``, on the
     Zipf scale (log10 of uses per billion words; 0 for words outside the lists)."""
     return _zipf_table().get(word.casefold().strip(".'-"))
+
+
+@lru_cache(maxsize=100_000)
+def _top_zipf(word: str) -> float:
+    """How common ``word`` is in the language where it is commonest."""
+    return max(word_zipf(word))
 
 
 def text_language(words: Iterable[str]) -> int:
@@ -413,7 +471,7 @@ def _typed_words(query: Query, m: Mention) -> list[str]:
 
 def _content_zipf(words: list[str], lang: int) -> float:
     """How ordinary a phrase is: as ordinary as its rarest content word."""
-    content = [w for w in words if w.casefold() not in STOPWORDS | _ARTICLES] or words
+    content = [w for w in words if w.casefold() not in _NOT_CONTENT] or words
     return min((word_zipf(w)[lang] for w in content), default=0.0)
 
 
@@ -443,7 +501,7 @@ def _at_home(readings: Iterable[Reading], lang: str) -> bool:
     """Whether the heaviest reading is a sizeable place where ``lang`` is spoken: such
     places are written about most in their own language ("Paris" is commoner in
     French). English, written everywhere, gets no such allowance."""
-    best = max(readings, key=lambda r: r.weight, default=None)
+    best = max(readings, key=_WEIGHT, default=None)
     return (
         best is not None
         and best.place.pop >= HOME_PLACE_POP
@@ -466,7 +524,7 @@ def _trusted(m: Mention, typed: list[str]) -> bool:
 def _named_with_article(m: Mention) -> bool:
     """Whether the place the mention most likely names carries the article in its own
     name ("The Hague", "The Gambia")."""
-    best = max(m.readings, key=lambda r: r.weight, default=None)
+    best = max(m.readings, key=_WEIGHT, default=None)
     return best is not None and fold(best.place.name).split(" ", 1)[0] == m.text.split()[0]
 
 
@@ -545,11 +603,9 @@ def _may_be_ordinary(query: Query, m: Mention) -> bool:
     enough in some language, against the renown of its places, to matter (most place
     names are in no list; "Berlin" is common, but the city more so)."""
     typed = _typed_words(query, m)
-    if _trusted(m, typed):
-        return False
-    content = [w for w in typed if w.casefold() not in STOPWORDS | _ARTICLES] or typed
-    z = min((max(word_zipf(w)) for w in content), default=0.0)
-    if z <= 0:
+    content = [w for w in typed if w.casefold() not in _NOT_CONTENT] or typed
+    z = min((_top_zipf(w) for w in content), default=0.0)
+    if z <= 0 or _trusted(m, typed):  # most place names are in no list: checked first
         return False
     renown = ORDINARY_ZIPF_BASE + ORDINARY_ZIPF_SLOPE * math.log10(max(_renown(m.readings), 1.0))
     return z - (renown - RUNNING_TEXT_SHIFT) > -4 * ORDINARY_SCALE

@@ -298,6 +298,8 @@ _EMPTY_NOISE = NoisePhrases([], [], [])
 
 def _clean_text(raw: str) -> tuple[str, list[str]]:
     """Flags out (returned as ISO codes), emoji and stray symbols to spaces."""
+    if raw.isascii():  # the common case: no flag, and a table says which symbols go
+        return raw.translate(_ASCII_DROPPED), []
     raw = raw.replace("\u200b", "").replace("\u180e", "").translate(_WORD_SPACES)  # see fold
     text, flags = extract_flags(raw)
     text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
@@ -306,6 +308,9 @@ def _clean_text(raw: str) -> tuple[str, list[str]]:
     return text, flags
 
 
+# What ``_clean_text`` turns into spaces, for ASCII text in one pass.
+_ASCII_DROPPED = {i: " " for i in range(128) if _is_dropped_symbol(chr(i)) or chr(i) in '#@"!?*~'}
+_ASCII_LETTER = re.compile("[A-Za-z]")  # str.isalpha on ASCII characters
 _SHORT_CAPS = re.compile(r"(\b[A-Z]{2,3}\b)")  # a capture group: split keeps the words
 # A window of a long cell ends before an ASCII character that is not part of a word (a
 # space, a comma): NFKC, casefolding and the capitals rule never reach across one.
@@ -413,15 +418,29 @@ def _tokens(text: str, chunk: str, postcodes: list[str]) -> list[Token]:
 
 
 def _part(chunk: str, noise: NoisePhrases, postcodes: list[str]) -> Part | None:
-    """One part between hard separators, noise removed; None when no word is left."""
+    """One part between hard separators, noise removed; None when no word is left.
+    Its postcodes are added to ``postcodes``."""
+    part, found = _read_part(chunk, noise)
+    postcodes.extend(found)
+    return part
+
+
+# Distinct texts share most of their parts ("Paris" in "Paris, France" and "Paris,
+# TX"): a part is read once per process. Safe: a pure function of the chunk and the
+# noise phrases.
+@lru_cache(maxsize=20_000)
+def _read_part(chunk: str, noise: NoisePhrases) -> tuple[Part | None, tuple[str, ...]]:
+    """``_part``'s work: the part (or None) and the postcodes found in it, in order."""
+    postcodes: list[str] = []
     folded = fold(chunk)
     stripped = noise.strip(folded)
     if not stripped:
-        return None
+        return None, ()
     tokens = _tokens(_take_postcodes(stripped, postcodes), chunk, postcodes)
     if not tokens:
-        return None
-    return Part(tuple(tokens), folded, _is_street(folded.split()), noise.strip_prefix(folded))
+        return None, tuple(postcodes)
+    part = Part(tuple(tokens), folded, _is_street(folded.split()), noise.strip_prefix(folded))
+    return part, tuple(postcodes)
 
 
 def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
@@ -441,7 +460,10 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
             part = _part(chunk, noise, postcodes)
             if part is not None:
                 parts.append(part)
-    has_letters = any(c.isalpha() for c in key) or bool(flags)
+    if key.isascii():
+        has_letters = _ASCII_LETTER.search(key) is not None or bool(flags)
+    else:
+        has_letters = any(c.isalpha() for c in key) or bool(flags)
     return Query(
         raw,
         key,

@@ -22,7 +22,7 @@ from .calibration import Calibration, load_calibration
 from .decide import decide
 from .evidence import CoordinateStage, TimeZoneStage
 from .index import PlaceIndex, load_index
-from .mentions import gather
+from .mentions import gather, load_words
 from .normalize import NoisePhrases, Query, normalize, normalize_key
 from .resolution import Reason, Resolution, Status, settle
 from .stages import (
@@ -104,10 +104,19 @@ class Resolver:
         """Identifies everything an answer depends on except the accept threshold."""
         cal = self.calibration
         curves = json.dumps([cal.method, cal.a, cal.b, cal.by_reason], sort_keys=True)
+        # The index's content hash, not its build time: hosts that built the same
+        # index apart agree (``build.layout.content_hash``).
+        content = self.index.meta.get("content_hash", "")[:12]
         return (
             f"{RESOLVER_VERSION}+index{self.index.meta.get('index_version')}"
-            f"@{self.index.meta.get('built_at')}+cal{zlib.crc32(curves.encode()):08x}"
+            f"@{content}+cal{zlib.crc32(curves.encode()):08x}"
         )
+
+    def warm(self) -> None:
+        """Load the in-memory tables (names, places, words) now rather than on first use:
+        before forking workers, so that they share them instead of each loading its own."""
+        self.index.load_tables()
+        load_words()
 
     def normalize(self, raw: object) -> Query:
         return normalize(raw, self.noise)

@@ -14,6 +14,7 @@ from __future__ import annotations
 import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Protocol
 
 from rapidfuzz import process
@@ -86,6 +87,11 @@ class Mention:
     # ("city" in "the city of dreams"); set by ``mentions.gather``.
     prior: float = 1.0
 
+    def with_readings(self, readings: list[Reading]) -> Mention:
+        """This mention with other readings (``dataclasses.replace``, without its cost:
+        a field added above must be added here too)."""
+        return Mention(self.text, self.part, self.start, readings, self.source, self.prior)
+
     @property
     def is_point(self) -> bool:
         return any(r.place.kind == "city" for r in self.readings) and not self.is_container
@@ -136,6 +142,9 @@ class Segmenter:
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
+        # Distinct texts share most of their parts: each part is segmented once per
+        # process (a pure function of the part).
+        self._covers = lru_cache(maxsize=20_000)(self._cover)
 
     def _lookup(self, key: str) -> tuple[NameHit, ...]:
         hits = self.index.lookup(key)
@@ -155,6 +164,11 @@ class Segmenter:
         return out
 
     def _part_spans(self, pi: int, part: Part) -> list[Span]:
+        return [Span(pi, s.start, s.end, s.key, s.hits) for s in self._covers(part)]
+
+    def _cover(self, part: Part) -> list[Span]:
+        """The spans of one part (numbered as part 0)."""
+        pi = 0
         words = [t.key for t in part.tokens]
         # The part as typed, before noise removal, may itself be a name ("Bay Area"),
         # and so may a long part ("Các Tiểu Vương quốc Ả Rập Thống nhất"). A part that
@@ -332,6 +346,9 @@ class PostcodeStage:
         return out
 
 
+_KIND_MEMO = 10_000  # hits tuples whose readings a stage keeps (then it starts again)
+
+
 class _SpanStage:
     """Shared logic of the exact-name stages: keep the readings of one place kind."""
 
@@ -340,19 +357,38 @@ class _SpanStage:
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
+        # Per hits tuple (the index returns the same tuple for the same name): the hits
+        # of this stage's kinds with their readings. The tuple is kept with its entry,
+        # so an entry is never taken for another tuple that reuses its id.
+        self._of_kind: dict[int, tuple[tuple[NameHit, ...], list[tuple[NameHit, Reading]]]] = {}
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         return True
+
+    def candidates(self, hits: tuple[NameHit, ...]) -> list[tuple[NameHit, Reading]]:
+        """The hits of this stage's kinds, in order, each with its reading."""
+        entry = self._of_kind.get(id(hits))
+        if entry is not None and entry[0] is hits:
+            return entry[1]
+        found = [
+            (h, Reading(h.place, h.origin, place_weight(h.place, h.origin)))
+            for h in hits
+            if h.place.kind in self.kinds
+        ]
+        if len(self._of_kind) >= _KIND_MEMO:
+            self._of_kind.clear()
+        self._of_kind[id(hits)] = (hits, found)
+        return found
 
     def resolve(self, query: Query, spans: Sequence[Span]) -> list[Mention]:
         out = []
         for span in spans:
             best: dict[int, Reading] = {}  # one reading per place: its strongest allowed name
-            for h in span.hits:
-                if h.place.kind in self.kinds and self.allowed(query, span, h):
-                    r = Reading(h.place, h.origin, place_weight(h.place, h.origin))
-                    if h.place.id not in best or r.weight > best[h.place.id].weight:
-                        best[h.place.id] = r
+            for h, r in self.candidates(span.hits):
+                if self.allowed(query, span, h) and (
+                    h.place.id not in best or r.weight > best[h.place.id].weight
+                ):
+                    best[h.place.id] = r
             readings = list(best.values())
             if readings:
                 out.append(Mention(span.key, span.part, span.start, readings))
@@ -470,6 +506,8 @@ class FuzzyMatcher:
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
+        # A pure function of the phrase: each is matched once per process.
+        self._matches = lru_cache(maxsize=20_000)(self._readings)
 
     @staticmethod
     def max_edits(text: str) -> int:
@@ -480,6 +518,13 @@ class FuzzyMatcher:
         return 1 if len(text) <= 8 else 2
 
     def match(self, phrase: str, pi: int, start: int) -> Mention | None:
+        readings = self._matches(phrase)
+        if readings is None:
+            return None
+        return Mention(phrase, pi, start, list(readings), source="fuzzy")
+
+    def _readings(self, phrase: str) -> tuple[Reading, ...] | None:
+        """The places closest in spelling to ``phrase`` (not itself), or None."""
         limit = self.max_edits(phrase)
         keys, targets = self.index.fuzzy_block(phrase[0], len(phrase), limit)
         if not keys:
@@ -497,7 +542,7 @@ class FuzzyMatcher:
             place = self.index.place(pid)
             similarity = 1.0 - dist / max(len(phrase), len(key))
             readings.append(Reading(place, origin, place_weight(place, origin), similarity))
-        return Mention(phrase, pi, start, readings, source="fuzzy")
+        return tuple(readings)
 
     def match_free_words(self, query: Query, covered: set[tuple[int, int]]) -> list[Mention]:
         """Mentions for runs of words outside ``covered`` ((part, word) pairs) and stopwords."""

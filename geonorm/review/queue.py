@@ -36,6 +36,7 @@ __all__ = [
     "ApplyReport",
     "Problem",
     "apply_decisions",
+    "check_items",
     "export_queue",
     "neutralise",
     "restore",
@@ -354,6 +355,31 @@ def _same_decision(stored: dict[str, Any] | None, decision: dict[str, Any]) -> b
         stored[f] == decision[f] or (stored[f] in (None, "") and decision[f] in (None, ""))
         for f in _DECISION_FIELDS
     )
+
+
+def check_items(
+    items: list[dict[str, Any]], resolver: Resolver
+) -> tuple[list[dict[str, Any]], list[Problem]]:
+    """Decisions given as dicts (``text``, ``country``, ``subdivision``, ``city``, ``note``),
+    checked as ``apply_decisions`` checks the lines of a queue; a problem's ``line`` is the
+    item's index. Returns the valid decisions (with ``key`` and ``text``) and the problems."""
+    decisions: list[dict[str, Any]] = []
+    problems: list[Problem] = []
+    for i, item in enumerate(items):
+        row = {f"decision_{f}": str(item.get(f) or "") for f in ("country", "subdivision", "city")}
+        row["decision_note"] = str(item.get("note") or "")
+        text = str(item.get("text") or "")
+        if not any(row[c].strip() for c in DECISION_COLUMNS[:3]):
+            problems.append(
+                Problem(i, f"no decision: give a country (ISO code) or '{NOT_A_PLACE}'")
+            )
+            continue
+        decision, problem = _check(row, i, resolver)
+        if problem or decision is None:
+            problems.extend([problem] if problem else [])
+            continue
+        decisions.append({**decision, "key": resolver.key(text), "text": text})
+    return decisions, problems
 
 
 def apply_decisions(

@@ -2,8 +2,9 @@
 
 Run by hand: ``python tests/perf/bench_clean.py [--rows 1000000] [--big-rows 10000000]``.
 Prints JSON: the floor (polars reading and writing the same file), a cold clean
-(fresh cache), a warm clean (same cache), their ratios to the floor and the
-peak RSS of each run; then a streaming run over ``--big-rows`` rows (the 1M
+(fresh cache), a warm clean (same cache), their ratios to the floor, the time
+a process takes to import what ``geonorm clean`` imports, and the peak RSS of
+each run; then a streaming run over ``--big-rows`` rows (the 1M
 file repeated) reporting its peak RSS. The data is an invented mix of city and
 country names (from the installed GeoNames and ISO data), other scripts, typos
 and junk, repeating in a Zipf-like way. Timings are reported, never asserted.
@@ -144,6 +145,10 @@ def main() -> None:
         ]
         cold, cold_rss = run(clean)
         warm, warm_rss = run(clean)
+        # What every run pays before reading a byte: the interpreter and the modules
+        # ``geonorm clean`` imports (its report page's among them).
+        imports_code = "import geonorm.cli, geonorm.batch.clean, geonorm.figures.report"
+        imports, _ = run([sys.executable, "-c", imports_code])
         result = {
             "rows": args.rows,
             "distinct": args.distinct,
@@ -153,6 +158,7 @@ def main() -> None:
             "warm_s": round(warm, 2),
             "cold_over_floor": round(cold / floor, 1),
             "warm_over_floor": round(warm / floor, 2),
+            "imports_s": round(imports, 2),
             "floor_peak_rss_mb": round(floor_rss),
             "cold_peak_rss_mb": round(cold_rss),
             "warm_peak_rss_mb": round(warm_rss),

@@ -13,7 +13,7 @@ from typing import NamedTuple
 
 from ..normalize import fold
 from ..tables import GENERIC_PLACE_WORDS
-from .layout import INDEX_VERSION, ORIGIN_ID, SCHEMA
+from .layout import INDEX_VERSION, ORIGIN_ID, SCHEMA, content_hash, pack_tables
 from .sources import Sources
 
 __all__ = ["SOURCE_PACKAGES", "Counts", "IndexBuilder", "Progress", "write_index"]
@@ -145,7 +145,10 @@ def write_index(b: IndexBuilder, path: Path, started: float) -> None:
     db.executemany("INSERT OR IGNORE INTO postcode VALUES (?,?)", b.postcodes)
     db.execute("CREATE INDEX name_key ON name(key)")
     db.execute("CREATE INDEX fuzzy_block ON fuzzy(block)")
-    db.executemany("INSERT INTO meta VALUES (?,?)", _meta(b, started).items())
+    db.execute("CREATE INDEX place_kind ON place(kind)")  # countries and subdivisions at start-up
+    db.executemany("INSERT INTO packed VALUES (?,?)", pack_tables(db).items())
+    meta = {**_meta(b, started), "content_hash": content_hash(db)}
+    db.executemany("INSERT INTO meta VALUES (?,?)", meta.items())
     db.commit()
     db.close()
     os.replace(tmp, path)
