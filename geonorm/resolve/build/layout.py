@@ -8,7 +8,7 @@ from ...paths import data_dir
 
 __all__ = ["INDEX_VERSION", "ORIGINS", "ORIGIN_ID", "SCHEMA", "default_index_path"]
 
-INDEX_VERSION = 3
+INDEX_VERSION = 4
 
 # Name origins, strongest first. Stored as small integers.
 ORIGINS = (
