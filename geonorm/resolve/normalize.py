@@ -79,12 +79,13 @@ _WORD_SPACES = str.maketrans({"\u1361": " "})
 # too ("名古屋：日本", "Berlin:Germany"), except after an Indic letter, where it stands
 # for the visarga ("जर्मनीदेश:"), and before a space, where it ends a label that the
 # noise phrases remove ("Location: Berlin"). A middle dot before a Shavian letter is
-# the namer dot that starts a name, not a separator. A name written with a separator
-# inside ("ボスニア・ヘルツェゴビナ") is still found: the segmenter looks the whole
-# text up first.
+# the namer dot that starts a name, not a separator. "via" between two places is a
+# separator ("Lisbon via Porto"); at the head of a part it starts a street ("Via
+# Roma 10"). A name written with a separator inside ("ボスニア・ヘルツェゴビナ") is
+# still found: the segmenter looks the whole text up first.
 _HARD_SEP = re.compile(
     r"\s*(?:[,/|;•()\[\]{}<>\n\t،؛۔、。・।॥፣።፤։]|(?<![\u0900-\u0dff]):(?!\s)"
-    r"|·(?![\U00010450-\U0001047f])|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|\bvia\b)\s*"
+    r"|·(?![\U00010450-\U0001047f])|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|(?<=\w)\s+via\b)\s*"
 )
 _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _WS = re.compile(r"\s+")

@@ -43,7 +43,7 @@ from .tuning import DEFAULT_ACCEPT
 __all__ = ["DEFAULT_ACCEPT", "RESOLVER_VERSION", "Resolver"]
 
 # Bump when answers change, so caches do not serve old answers.
-RESOLVER_VERSION = "1.4"
+RESOLVER_VERSION = "1.5"
 NOT_A_PLACE_REASON = {
     "empty": Reason.EMPTY,
     "placeholder": Reason.PLACEHOLDER,

@@ -60,13 +60,16 @@ def _add_city(b: IndexBuilder, c: dict[str, Any], sub: str) -> None:
     b.add_name(c["name"], pid, "name", fuzzy=big)
     for variant in saint_variants(c["name"]):
         b.add_name(variant, pid, "name")
-    main_words = set(fold(c["name"]).split())
+    main = fold(c["name"])
+    main_words = set(main.split())
     for alt in alternates:
         if good_alt_name(alt):
-            # A short form of a longer name ("Morelos" for "Ecatepec de Morelos") is weak.
+            # A short form of a longer name ("Morelos" for "Ecatepec de Morelos") is weak;
+            # its head ("Frankfurt" for "Frankfurt am Main") is how people write it, typos too.
             words = set(fold(alt).split())
             short = bool(words) and words < main_words
-            fuzzy = big and pop >= FUZZY_ALT_POP and not short
+            head = short and main.startswith(fold(alt) + " ")
+            fuzzy = big and pop >= FUZZY_ALT_POP and (head or not short)
             b.add_name(alt, pid, "short" if short else "alt", fuzzy=fuzzy)
 
 
