@@ -290,3 +290,36 @@ def test_a_typo_of_the_short_form_of_a_long_city_name(resolver):
     assert any(c["name"] == "Frankfurt am Main" for c in cities)
     r = resolver.resolve("Frankurt")
     assert (r.country, r.city, r.reason) == ("DE", "Frankfurt am Main", Reason.SPELLING)
+
+
+def test_answers_do_not_depend_on_the_hash_seed():
+    # Two processes with different string-hash seeds give the same answers to the
+    # last digit (sums over countries run in a fixed order).
+    import os
+    import subprocess
+    import sys
+
+    path = Path(__file__).parent / "data" / "locations_more.csv"
+    with open(path, encoding="utf-8", newline="") as f:
+        texts = [r["text"] for r in csv.DictReader(f)][:300]
+    script = (
+        "import json, sys\n"
+        "from geonorm import Resolver\n"
+        "r = Resolver()\n"
+        "texts = json.loads(sys.stdin.read())\n"
+        "print(json.dumps([repr(r.resolve(t).to_dict()) for t in texts]))\n"
+    )
+    outs = []
+    for seed in ("1", "2"):
+        env = {**os.environ, "PYTHONHASHSEED": seed}
+        done = subprocess.run(
+            [sys.executable, "-c", script],
+            input=json.dumps(texts),
+            capture_output=True,
+            text=True,
+            env=env,
+            timeout=300,
+            check=True,
+        )
+        outs.append(json.loads(done.stdout))
+    assert outs[0] == outs[1]

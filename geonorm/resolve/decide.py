@@ -378,7 +378,8 @@ def decide(query: Query, mentions: list[Mention], fictional: Sequence[str] = ())
         return Resolution(Status.NOT_A_PLACE, Reason.FICTIONAL, confidence=1.0, score=1.0)
     every = places
     places, by_cue = current_places(places, cue_roles(query, mentions) if len(places) > 1 else {})
-    countries = set().union(*(w.dist.keys() for w in places))
+    # Sorted: sums over the joint distribution must not depend on the hash seed.
+    countries = sorted(set().union(*(w.dist.keys() for w in places)))
     joint = {c: math.prod(w.dist.get(c, 0.0) for w in places) for c in countries}
     several = _several_countries(places, joint)
     if several is not None:
