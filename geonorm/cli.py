@@ -246,6 +246,13 @@ def lookup(
         )
 
 
+def _report_html(*args: Any, **kwargs: Any) -> str:
+    """The run report page, imported only when one is asked for (it needs scipy)."""
+    from .figures.report import report_html
+
+    return report_html(*args, **kwargs)
+
+
 @app.command()
 @handle_errors
 def clean(
@@ -380,8 +387,6 @@ def clean(
                     progress=show,
                 )
             else:
-                from .figures.report import report_html
-
                 summary = clean_file(
                     input,
                     column,
@@ -389,7 +394,7 @@ def clean(
                     options,
                     cache=the_cache,
                     progress=show,
-                    report_page=report_html,
+                    report_page=_report_html,
                 )
         finally:
             show.close()
