@@ -51,7 +51,7 @@ __all__ = [
     "resolve_series",
 ]
 
-# Imported on first use: polars and sqlite-utils cost a third of a second at start-up,
+# Imported on first use: polars and the cache cost a third of a second at start-up,
 # which a single lookup does not need.
 _LAZY = {
     "CleanSummary": "batch.clean",

@@ -206,7 +206,7 @@ def lookup(
     resolver = Resolver(accept=accept, progress=show.text)
     keys = [resolver.key(t) for t in text]
     the_cache = None
-    if cache is not None:  # sqlite-utils is imported only when a cache is used
+    if cache is not None:  # the cache module is imported only when a cache is used
         from .batch.cache import Cache
 
         the_cache = Cache(cache)
