@@ -146,8 +146,8 @@ def main() -> None:
         cold, cold_rss = run(clean)
         warm, warm_rss = run(clean)
         # What every run pays before reading a byte: the interpreter and the modules
-        # ``geonorm clean`` imports (its report page's among them).
-        imports_code = "import geonorm.cli, geonorm.batch.clean, geonorm.figures.report"
+        # ``geonorm clean`` imports (the report page's only with ``--report *.html``).
+        imports_code = "import geonorm.cli, geonorm.batch.clean"
         imports, _ = run([sys.executable, "-c", imports_code])
         result = {
             "rows": args.rows,
