@@ -72,11 +72,17 @@ class LocalEngine:
 GC_THRESHOLD = 50_000
 
 
+def _collect_rarely() -> tuple[int, int, int]:
+    """Raise the youngest generation's threshold to ``GC_THRESHOLD``; returns the old ones."""
+    before = gc.get_threshold()
+    gc.set_threshold(max(GC_THRESHOLD, before[0]), *before[1:])
+    return before
+
+
 @contextmanager
 def _rare_collections() -> Iterator[None]:
     """Collect garbage less often while this process resolves (``GC_THRESHOLD``)."""
-    before = gc.get_threshold()
-    gc.set_threshold(max(GC_THRESHOLD, before[0]), *before[1:])
+    before = _collect_rarely()
     try:
         yield
     finally:
@@ -92,8 +98,7 @@ def _worker_init(resolver: Resolver | None, index_path: str, accept: float) -> N
         resolver = Resolver(PlaceIndex(Path(index_path)), accept=accept)
     resolver.index.reopen()
     _WORKER = resolver
-    threshold = gc.get_threshold()  # a worker process does nothing but resolve
-    gc.set_threshold(max(GC_THRESHOLD, threshold[0]), *threshold[1:])
+    _collect_rarely()  # a worker process does nothing but resolve
 
 
 def _worker_resolve(keys: Sequence[str]) -> list[tuple[str, Resolution]]:

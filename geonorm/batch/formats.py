@@ -51,6 +51,7 @@ __all__ = [
     "count_values",
     "distinct_values",
     "find_ragged",
+    "format_of_name",
     "geo_table",
     "hold",
     "lazy_table",
@@ -365,13 +366,18 @@ def check_targets(
     return {key: target for key, (target, _) in done.items()}
 
 
+def format_of_name(name: str | Path) -> str | None:
+    """The format a file name's extension names (``.csv``, ``.pq``, ``.ndjson`` …), or None."""
+    return _EXTENSIONS.get(Path(name).suffix.lower())
+
+
 # --- opening an input ---------------------------------------------------------------------
 
 
 def _detect_format(path: Path, head: bytes, given: str | None) -> str:
     if given:
         return given
-    ext = _EXTENSIONS.get(path.suffix.lower())
+    ext = format_of_name(path)
     if ext:
         return ext
     if head.startswith(b"PAR1"):
@@ -600,7 +606,7 @@ def output_format(output: str, given: str | None, source: Source) -> str:
         return given
     if output == "-":
         return source.format
-    fmt = _EXTENSIONS.get(Path(output).suffix.lower())
+    fmt = format_of_name(output)
     if fmt is None:
         raise InputError(
             f"cannot tell the output format from {output!r}",

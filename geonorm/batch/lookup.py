@@ -18,9 +18,7 @@ from .answers import Answers, resolve_keys
 if TYPE_CHECKING:
     from .cache import Cache
 
-__all__ = ["answer_json", "answer_json_slow", "lookup_keys", "lookup_texts"]
-
-_LEFT_OUT = ("evidence", "score")  # internal: the file prior's input and the raw score
+__all__ = ["answer_json", "lookup_keys", "lookup_texts"]
 
 
 def answer_json(text: str, res: Resolution) -> dict[str, Any]:
@@ -51,12 +49,6 @@ def answer_json(text: str, res: Resolution) -> dict[str, Any]:
         ],
         "source": res.source,
     }
-
-
-def answer_json_slow(text: str, res: Resolution) -> dict[str, Any]:
-    """The same from ``Resolution.to_dict`` (the definition ``answer_json`` must equal)."""
-    d = res.to_dict()
-    return {"text": text, **{k: v for k, v in d.items() if k not in _LEFT_OUT}}
 
 
 def lookup_texts(

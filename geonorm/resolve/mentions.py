@@ -114,12 +114,8 @@ def _as_typed(query: Query, m: Mention) -> Mention:
 
     if not any(r.place.name.casefold() == typed for r in m.readings):
         return m
-    return replace(
-        m,
-        readings=[
-            replace(r, weight=r.weight * VARIANT_DEMOTION) if unaccented(r) else r
-            for r in m.readings
-        ],
+    return m.with_readings(
+        [replace(r, weight=r.weight * VARIANT_DEMOTION) if unaccented(r) else r for r in m.readings]
     )
 
 

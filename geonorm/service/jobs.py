@@ -33,6 +33,7 @@ import time
 from pathlib import Path
 from typing import Any
 
+from ..batch.formats import format_of_name
 from ..errors import GeonormError, InputError
 from ..progress import ProgressEvent
 from .store import Job, ServiceStore
@@ -41,17 +42,6 @@ __all__ = ["FORMAT_SUFFIX", "JobRunner", "new_job_id", "suffix_format", "valid_j
 
 _ID = re.compile(r"^[0-9a-f]{24}$")
 FORMAT_SUFFIX = {"csv": ".csv", "tsv": ".tsv", "parquet": ".parquet", "jsonl": ".jsonl"}
-_SUFFIX_FORMAT = {
-    ".csv": "csv",
-    ".txt": "csv",
-    ".tsv": "tsv",
-    ".tab": "tsv",
-    ".parquet": "parquet",
-    ".pq": "parquet",
-    ".jsonl": "jsonl",
-    ".ndjson": "jsonl",
-    ".json": "jsonl",
-}
 _SWEEP_SECONDS = 3600.0
 _CANCEL_CHECK_SECONDS = 0.5
 
@@ -68,7 +58,7 @@ def suffix_format(name: str | None) -> str | None:
     """The format an uploaded file's name suggests (its extension only), or None."""
     if not name:
         return None
-    return _SUFFIX_FORMAT.get(Path(name.replace("\\", "/")).suffix.lower())
+    return format_of_name(name.replace("\\", "/"))
 
 
 class JobRunner:
