@@ -5,9 +5,11 @@ Prints JSON: the floor (polars reading and writing the same file), a cold clean
 (fresh cache), a warm clean (same cache), their ratios to the floor, the time
 a process takes to import what ``geonorm clean`` imports, and the peak RSS of
 each run; then a streaming run over ``--big-rows`` rows (the 1M
-file repeated) reporting its peak RSS. The data is an invented mix of city and
-country names (from the installed GeoNames and ISO data), other scripts, typos
-and junk, repeating in a Zipf-like way. Timings are reported, never asserted.
+file repeated) reporting its peak RSS. With ``--compare-workers`` a second cold
+run with ``--workers 1`` gives the speed-up of the process pool. The data is an
+invented mix of city and country names (from the installed GeoNames and ISO
+data), other scripts, typos and junk, repeating in a Zipf-like way. Timings are
+reported, never asserted.
 """
 
 from __future__ import annotations
@@ -120,6 +122,9 @@ def main() -> None:
     ap.add_argument("--distinct", type=int, default=150_000)
     ap.add_argument("--big-rows", type=int, default=10_000_000)
     ap.add_argument("--workers", type=int, default=os.cpu_count() or 1)
+    ap.add_argument(
+        "--compare-workers", action="store_true", help="also a cold run with --workers 1"
+    )
     args = ap.parse_args()
     with tempfile.TemporaryDirectory() as td:
         src, out, cache = Path(td) / "people.csv", Path(td) / "out.csv", Path(td) / "cache.sqlite"
@@ -145,6 +150,10 @@ def main() -> None:
         ]
         cold, cold_rss = run(clean)
         warm, warm_rss = run(clean)
+        one_worker = None
+        if args.compare_workers:
+            cache.unlink()
+            one_worker, _ = run([*clean[:-1], "1"])
         # What every run pays before reading a byte: the interpreter and the modules
         # ``geonorm clean`` imports (the report page's only with ``--report *.html``).
         imports_code = "import geonorm.cli, geonorm.batch.clean"
@@ -163,6 +172,9 @@ def main() -> None:
             "cold_peak_rss_mb": round(cold_rss),
             "warm_peak_rss_mb": round(warm_rss),
         }
+        if one_worker is not None:
+            result["cold_workers_1_s"] = round(one_worker, 2)
+            result["workers_speedup"] = round(one_worker / cold, 2)
         if args.big_rows:
             big = Path(td) / "big.csv"
             repeat = max(1, args.big_rows // args.rows)

@@ -15,6 +15,9 @@ Not part of the test suite: timings are reported, never asserted.
 - ``lookup_process_s_median``: ``geonorm lookup Lyon``, the whole process, on a
   built index (median of five).
 - ``demo_clean_*``: cleaning the demo file with a fresh cache, then again.
+- ``python_start_s_median`` and ``yardstick_loop_s``: what a bare ``python -c pass``
+  takes, and a fixed pure-Python loop (ten million additions) in this process: how
+  fast this machine runs Python, so figures from two machines can be compared.
 """
 
 from __future__ import annotations
@@ -43,6 +46,18 @@ def _time(cmd: list[str]) -> float:
     t0 = time.perf_counter()
     subprocess.run(cmd, check=True, capture_output=True)
     return time.perf_counter() - t0
+
+
+def yardstick() -> float:
+    """Seconds for ten million additions in a plain loop (the best of three)."""
+    best = float("inf")
+    for _ in range(3):
+        t0 = time.perf_counter()
+        total = 0
+        for i in range(10_000_000):
+            total += i
+        best = min(best, time.perf_counter() - t0)
+    return best
 
 
 def per_string(n: int, plain: bool) -> dict[str, float]:
@@ -98,6 +113,7 @@ def main() -> None:
     exe = ["geonorm"]
     _time([*exe, "lookup", "Lyon"])  # make sure the index exists
     lookups = sorted(_time([*exe, "lookup", "Lyon"]) for _ in range(5))
+    starts = sorted(_time([sys.executable, "-c", "pass"]) for _ in range(5))
     from geonorm.demo import demo_file
 
     with tempfile.TemporaryDirectory() as td:
@@ -119,6 +135,8 @@ def main() -> None:
     result.update(
         {
             "lookup_process_s_median": round(lookups[2], 3),
+            "python_start_s_median": round(starts[2], 3),
+            "yardstick_loop_s": round(yardstick(), 3),
             "demo_rows": 20000,
             "demo_clean_cold_cache_s": round(cold, 2),
             "demo_clean_warm_cache_s": round(warm_clean, 2),
