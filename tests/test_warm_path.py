@@ -6,6 +6,7 @@ byte-identical outputs whether a run is cold or warm."""
 from __future__ import annotations
 
 import csv
+import io
 import itertools
 import random
 import sqlite3
@@ -90,6 +91,52 @@ def test_texts_new_to_the_cache_are_normalised_once(resolver, tmp_path):
         table = answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
         again, _ = _by_columns(_TEXTS, resolver, cache, resolver.accept)
     assert table.mapping() == again == _by_objects(_TEXTS, resolver, None, resolver.accept)
+
+
+def test_texts_no_pack_holds_are_read_by_key_or_resolved(resolver, tmp_path):
+    with Cache(tmp_path / "c.sqlite") as cache:
+        answer_table(_values(_TEXTS[:40]), resolver=resolver, cache=cache)  # two texts packed
+        oslo = resolver.key("Oslo, Norway")
+        resolve_keys({oslo: 1}, resolver=resolver, cache=cache)  # stored by key, no pack
+        table = answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
+        again = answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
+    assert table.from_cache == 3 and table.resolved == table.distinct - 3
+    assert again.from_cache == again.distinct and again.resolved == 0
+    reference = _by_objects(_TEXTS, resolver, None, resolver.accept)
+    assert table.mapping() == again.mapping() == reference
+
+
+def test_a_packed_answer_with_a_status_not_ours_is_named_with_a_hint(resolver, tmp_path):
+    with Cache(tmp_path / "c.sqlite") as cache:
+        answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
+        pack = cache.answer_packs(resolver.version, len(_TEXTS))
+        assert pack is not None
+        cache.conn.execute("DELETE FROM answer_pack")
+        cache.put_pack(pack.with_columns(status=pl.lit("no-such-status")), resolver.version)
+        with pytest.raises(CacheError) as err:
+            answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
+    assert "damaged" in err.value.message and "backup" in err.value.hint
+
+
+def test_a_cache_of_layout_4_keeps_its_blocks_of_arrow_ipc_and_reads_them(resolver, tmp_path):
+    path = tmp_path / "c.sqlite"
+    with Cache(path) as cache:
+        first = answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
+    with sqlite3.connect(path) as db:  # as layout 4 left it: blocks of Arrow IPC
+        for table in ("answer_pack", "prior_pack"):
+            blobs = db.execute(f"SELECT rowid, data FROM {table}").fetchall()
+            assert blobs and all(blob[:4] == b"PAR1" for _, blob in blobs)
+            for rowid, blob in blobs:
+                ipc = io.BytesIO()
+                pl.read_parquet(io.BytesIO(blob)).write_ipc(ipc, compression="lz4")
+                db.execute(f"UPDATE {table} SET data = ? WHERE rowid = ?", (ipc.getvalue(), rowid))
+        db.execute("UPDATE geonorm_meta SET value = '4' WHERE name = 'layout'")
+    with Cache(path) as cache:
+        again = answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
+        layout = cache.conn.execute("SELECT value FROM geonorm_meta WHERE name = 'layout'")
+        assert layout.fetchone() == (str(CACHE_SCHEMA),)
+    assert again.from_cache == again.distinct and again.resolved == 0
+    assert again.mapping() == first.mapping()
 
 
 def test_a_decision_made_after_the_first_run_shows_in_the_warm_run(resolver, tmp_path):
@@ -202,7 +249,7 @@ def test_a_cache_of_the_previous_layout_gets_the_new_tables_and_keeps_its_answer
         assert cache.packed_answers(pl.Series(["Oslo"]), "v") is None
     with sqlite3.connect(path) as db:
         layout = db.execute("SELECT value FROM geonorm_meta WHERE name = 'layout'").fetchone()
-    assert layout == (str(CACHE_SCHEMA),) and CACHE_SCHEMA == 4
+    assert layout == (str(CACHE_SCHEMA),) and CACHE_SCHEMA == 5
 
 
 def test_a_damaged_pack_of_answers_is_named_with_a_hint(resolver, tmp_path):

@@ -11,7 +11,8 @@ For reruns of whole files (``columnar.answer_table``) three more tables hold,
 under the resolver version that made them: ``text_key``, each raw text's key
 (stored when the text is first normalised; cells longer than a few thousand
 characters are not kept); ``answer_pack``, raw texts with their stored
-answers as blocks of columns (Arrow IPC), read back in one query; and
+answers as blocks of columns (Parquet; Arrow IPC in layout 4), read back in
+one query; and
 ``prior_pack``, what a file prior did to the answers it weighed, by the
 prior's fingerprint. All three are caches of the tables above: rows of
 another resolver version are never read.
@@ -60,7 +61,9 @@ if TYPE_CHECKING:  # polars is imported where columns are read: a lookup does no
 
 __all__ = ["APPLICATION_ID", "CACHE_SCHEMA", "Cache", "default_cache_path"]
 
-CACHE_SCHEMA = 4  # layout of our tables, kept in geonorm_meta; 2 was the last unmarked one
+# Layout of our tables, kept in geonorm_meta; 2 was the last unmarked one. 5: blocks of
+# columns are stored as Parquet (4 stored Arrow IPC, which is still read).
+CACHE_SCHEMA = 5
 APPLICATION_ID = 0x67656F6E  # "geon" in ASCII: PRAGMA application_id of a geonorm cache
 _BUSY_SECONDS = 60.0  # how long to wait for another run's write lock before giving up
 # Reasons whose answers the file prior may re-rank: their evidence is read back.
@@ -137,7 +140,7 @@ _LAYOUT: tuple[tuple[str, str, str], ...] = (
     ("geonorm_meta", "[name] TEXT, [value] TEXT", "[name]"),
     # Raw text → its key, as the resolver version of ``version`` normalised it (layout 4).
     ("text_key", "[text] TEXT, [version] TEXT, [key] TEXT", "[text]"),
-    # Stored answers by raw text, as blocks of columns (Arrow IPC) (layout 4).
+    # Stored answers by raw text, as blocks of columns (``_block``) (layout 4).
     ("answer_pack", "[id] INTEGER, [version] TEXT, [rows] INTEGER, [data] BLOB", "[id]"),
     # What a file prior did to the answers it weighed, by the prior's fingerprint (layout 4).
     ("prior_pack", "[fingerprint] TEXT, [version] TEXT, [at] TEXT, [data] BLOB", "[fingerprint]"),
@@ -371,10 +374,20 @@ def _first_of_each(frame: pl.DataFrame) -> pl.DataFrame:
     return frame if texts.n_unique() == frame.height else frame.filter(texts.is_first_distinct())
 
 
-def _ipc(frame: pl.DataFrame) -> bytes:
+def _block(frame: pl.DataFrame) -> bytes:
+    """A block of columns as stored: Parquet, which reads back faster than Arrow IPC."""
     out = io.BytesIO()
-    frame.write_ipc(out, compression="lz4")
+    frame.write_parquet(out, compression="lz4")
     return out.getvalue()
+
+
+def _frame_of(block: bytes) -> pl.DataFrame:
+    """A stored block of columns: Parquet, or Arrow IPC as caches of layout 4 first stored."""
+    import polars as pl
+
+    if block[:4] == b"PAR1":
+        return pl.read_parquet(io.BytesIO(block))
+    return pl.read_ipc(io.BytesIO(block))
 
 
 def _columns_of(rows: Sequence[Sequence[Any]], schema: Mapping[str, str]) -> pl.DataFrame:
@@ -605,9 +618,9 @@ class Cache:
         frame = self._frame(
             sql, keys.drop_nulls().unique(), "resolution", ANSWER_COLUMNS, [version]
         )
-        return self._checked(frame)
+        return self.checked_answers(frame)
 
-    def _checked(self, frame: pl.DataFrame) -> pl.DataFrame:
+    def checked_answers(self, frame: pl.DataFrame) -> pl.DataFrame:
         """``frame`` of answer columns, refused when a status or reason is not ours."""
         import polars as pl
 
@@ -628,22 +641,37 @@ class Cache:
         """Stored answers by raw text, from the packs of resolver ``version``: ``text``,
         ``key`` and ``ANSWER_COLUMNS``, for those of ``texts`` a pack holds.
 
-        A pack is a block of columns (Arrow IPC) that ``put_pack`` stored. None when
+        A pack is a block of columns (``_block``) that ``put_pack`` stored. None when
         there is none, or when the packs hold far more texts than asked for (the
         answers are then read by key).
+        """
+        frame = self.answer_packs(version, texts.len())
+        if frame is None:
+            return None
+        frame = frame.filter(frame.get_column("text").is_in(texts.drop_nulls().implode()))
+        return self.checked_answers(frame)
+
+    @_guarded
+    def answer_packs(self, version: str, wanted: int) -> pl.DataFrame | None:
+        """Every text the packs of resolver ``version`` hold (``put_pack``), with its key and
+        stored answer (``text``, ``key`` and ``ANSWER_COLUMNS``; the first of a text stored
+        twice), for a run that asks for ``wanted`` texts. None when there is none, or when
+        the packs hold far more texts than that (the answers are then read by key).
+
+        Not checked: the rows a run uses go through ``checked_answers``.
         """
         import polars as pl
 
         held = self.conn.execute(
             "SELECT count(*), sum(rows) FROM answer_pack WHERE version = ?", (version,)
         ).fetchone()
-        if not held[0] or held[1] > max(_PACK_ROWS, _SCAN_SHARE * texts.len()):
+        if not held[0] or held[1] > max(_PACK_ROWS, _SCAN_SHARE * wanted):
             return None
         blobs = self.conn.execute(
             "SELECT data FROM answer_pack WHERE version = ? ORDER BY id", (version,)
         ).fetchall()
         try:
-            frame = pl.concat([pl.read_ipc(io.BytesIO(blob)) for (blob,) in blobs])
+            frame = pl.concat([_frame_of(blob) for (blob,) in blobs])
             frame = frame.select(["text", *ANSWER_COLUMNS]).cast(
                 {
                     name: getattr(pl, kind)
@@ -655,8 +683,7 @@ class Cache:
                 f"a block of answers stored in the cache at {self.path} is damaged ({exc})",
                 hint=_DAMAGED,
             ) from exc
-        frame = frame.filter(frame.get_column("text").is_in(texts.drop_nulls().implode()))
-        return self._checked(_first_of_each(frame))
+        return _first_of_each(frame)
 
     @_guarded
     def put_pack(self, frame: pl.DataFrame, version: str) -> None:
@@ -668,16 +695,16 @@ class Cache:
             conn.execute("DELETE FROM answer_pack WHERE version <> ?", (version,))
             conn.execute(
                 "INSERT INTO answer_pack (version, rows, data) VALUES (?, ?, ?)",
-                (version, frame.height, _ipc(frame)),
+                (version, frame.height, _block(frame)),
             )
             count = conn.execute("SELECT count(*) FROM answer_pack").fetchone()[0]
             if count > _PACKS:
                 blobs = conn.execute("SELECT data FROM answer_pack ORDER BY id").fetchall()
-                merged = _first_of_each(pl.concat([pl.read_ipc(io.BytesIO(b)) for (b,) in blobs]))
+                merged = _first_of_each(pl.concat([_frame_of(b) for (b,) in blobs]))
                 conn.execute("DELETE FROM answer_pack")
                 conn.execute(
                     "INSERT INTO answer_pack (version, rows, data) VALUES (?, ?, ?)",
-                    (version, merged.height, _ipc(merged)),
+                    (version, merged.height, _block(merged)),
                 )
 
     @_guarded
@@ -691,7 +718,7 @@ class Cache:
         if row is None:
             return None
         try:
-            return pl.read_ipc(io.BytesIO(row[0]))
+            return _frame_of(row[0])
         except (OSError, pl.exceptions.PolarsError) as exc:
             raise CacheError(
                 f"a block of answers stored in the cache at {self.path} is damaged ({exc})",
@@ -705,7 +732,7 @@ class Cache:
             conn.execute(
                 "INSERT OR REPLACE INTO prior_pack (fingerprint, version, at, data) "
                 "VALUES (?, ?, ?, ?)",
-                (fingerprint, version, utc_stamp(), _ipc(frame)),
+                (fingerprint, version, utc_stamp(), _block(frame)),
             )
             conn.execute(
                 "DELETE FROM prior_pack WHERE version <> ? OR rowid NOT IN "

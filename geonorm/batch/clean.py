@@ -7,9 +7,10 @@ as they finish, people's decisions, the file prior, the accept threshold); a
 run with a remote stage takes the same steps one answer at a time
 (``answers.resolve_keys``). Pass 2 joins the geo columns to every row and
 writes a temporary file that is renamed at the end. A CSV or TSV file up to
-``formats.IN_MEMORY_BYTES`` is read once for both passes; a larger file is
-streamed twice, so memory follows the distinct strings, not the rows. The
-output of an interrupted-and-resumed run is byte-identical to an
+``formats.IN_MEMORY_BYTES`` is read once for both passes, and each row's geo
+columns are taken by its position among the distinct values; a larger file is
+streamed twice, in bounded chunks, so memory follows the distinct strings, not
+the rows. The output of an interrupted-and-resumed run is byte-identical to an
 uninterrupted one.
 """
 

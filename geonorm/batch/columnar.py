@@ -24,7 +24,7 @@ from __future__ import annotations
 import hashlib
 import json
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, cast, overload
 
 import polars as pl
@@ -62,6 +62,9 @@ _ROW_SCHEMA: dict[str, Any] = {
     "confidence": pl.Float64,
     "reason_text": pl.String,
 }
+# Statuses and reasons by their text: a look-up, cheaper than calling the enum per row.
+_STATUSES = {s.value: s for s in Status}
+_REASONS = {r.value: r for r in Reason}
 # What the file prior did to each answer it weighed: ``changed``, and the new answer if so.
 _MEMO_SCHEMA: dict[str, Any] = {**_ROW_SCHEMA, "changed": pl.Boolean}
 
@@ -80,24 +83,31 @@ class AnswerTable:
     from_cache: int = 0
     resolved: int = 0
     decided: int = 0
+    _by_value: pl.DataFrame | None = field(default=None, init=False, repr=False, compare=False)
+    _distinct: int | None = field(default=None, init=False, repr=False, compare=False)
 
     @property
     def distinct(self) -> int:
         """How many distinct keys (distinct strings once normalised)."""
-        return self.values.get_column("key").n_unique()
+        if self._distinct is None:
+            self._distinct = self.values.get_column("key").n_unique()
+        return self._distinct
 
     def by_value(self) -> pl.DataFrame:
         """``value`` and the geo columns, one row per distinct value, in ``values``' order."""
-        return (
-            self.values.select("value", "key")
-            .join(self.answers, on="key", how="left", maintain_order="left")
-            .drop("key")
-        )
+        if self._by_value is None:
+            self._by_value = (
+                self.values.select("value", "key")
+                .join(self.answers, on="key", how="left", maintain_order="left")
+                .drop("key")
+            )
+        return self._by_value
 
     def status_rows(self) -> dict[str, int]:
         """Rows per status (every status named, zero where none)."""
         got = (
-            self.values.join(self.answers.select("key", "status"), on="key", how="left")
+            self.by_value()
+            .select("status", self.values.get_column("rows"))
             .group_by("status")
             .agg(pl.col("rows").sum())
         )
@@ -135,22 +145,25 @@ def answer_table(
     accept = resolver.accept if accept is None else accept
     version = resolver.version
     packed = _packed(values, cache, version)
-    keyed = values.join(packed.select(pl.col("text").alias("value"), "key"), on="value", how="left")
+    keyed = packed.select("value", "rows", "key")
     rest = keyed.filter(pl.col("key").is_null()).drop("key")
-    keyed = pl.concat([keyed.filter(pl.col("key").is_not_null()), with_keys(rest, resolver, cache)])
+    rest_keyed = with_keys(rest, resolver, cache)
+    keyed = pl.concat([keyed.filter(pl.col("key").is_not_null()), rest_keyed])
     counts = keyed.group_by("key").agg(pl.col("rows").sum())
     note(
         progress,
         f"{int(counts.get_column('rows').sum()):,} rows, {counts.height:,} distinct strings",
     )
     keys = counts.get_column("key")
-    known = packed.drop("text")
-    if known.get_column("key").n_unique() < known.height:  # texts that share a key
+    known = packed.filter(pl.col("key").is_not_null()).drop("value", "rows")
+    # Every key of a text a pack holds has its answer there: only the others are looked for.
+    others = _not_among(rest_keyed.get_column("key").unique(), known.get_column("key"))
+    if counts.height - others.len() < known.height:  # texts that share a key
         known = known.filter(known.get_column("key").is_first_distinct())
-    found = _stored(keys.filter(~keys.is_in(known.get_column("key").implode())), cache, version)
+    found = _stored(others, cache, version)
     parts = [known, found]
     fresh: dict[str, Resolution] = {}
-    missing = keys.filter(~keys.is_in(pl.concat([known["key"], found["key"]]).implode()))
+    missing = _not_among(others, found.get_column("key"))
     misses = _Keys(missing.sort())
     if misses:
         advance = start(progress, "resolving", len(misses))
@@ -179,13 +192,23 @@ def answer_table(
     decided = {key: Resolution.from_override(d) for key, d in decisions.items()}
     rows = _replace(_with_status(stored, accept), decided, accept)
     reranked = _reranked(rows, counts, fresh, decided, resolver, cache, accept)
-    return AnswerTable(
+    table = AnswerTable(
         keyed,
         _geo_columns(_replace(rows, reranked, accept)),
         from_cache=known.height + found.height,
         resolved=len(misses),
         decided=len(decisions),
     )
+    table._distinct = counts.height
+    return table
+
+
+def _not_among(keys: pl.Series, among: pl.Series) -> pl.Series:
+    """``keys`` (distinct, usually few) that are not among ``among`` (maybe many)."""
+    if not keys.len() or not among.len():
+        return keys
+    shared = among.filter(among.is_in(keys.implode()))
+    return keys.filter(~keys.is_in(shared.implode()))
 
 
 _PACK_COLUMNS = (
@@ -225,10 +248,14 @@ class _Keys(Sequence[str]):
 
 
 def _packed(values: pl.DataFrame, cache: Cache | None, version: str) -> pl.DataFrame:
-    """Stored answers by raw text (``text``, ``key`` and the answer columns) of ``values``."""
-    found = cache.packed_answers(values.get_column("value"), version) if cache else None
-    if found is None:
-        found = pl.DataFrame(schema={c: _ROW_SCHEMA.get(c, pl.String) for c in _PACK_COLUMNS})
+    """``values`` (``value``, ``rows``) with the key and stored answer of each raw text the
+    cache's answer packs hold (``key`` and the answer columns; missing for the others)."""
+    packs = cache.answer_packs(version, values.height) if cache else None
+    if packs is None:
+        packs = pl.DataFrame(schema={c: _ROW_SCHEMA.get(c, pl.String) for c in _PACK_COLUMNS})
+    found = values.join(packs.rename({"text": "value"}), on="value", how="left")
+    if cache is not None:
+        cache.checked_answers(found.filter(pl.col("key").is_not_null()))
     return found.with_columns(pl.col("reason").alias("reason_text"))  # stored: no remote source
 
 
@@ -338,13 +365,13 @@ def _with_status(rows: pl.DataFrame, accept: float) -> pl.DataFrame:
     combos = rows.group_by(inputs).agg(pl.col("country").first())
     settled = [
         status_at(
-            cast(Resolution, _Probe(Status(st), Reason(r), country or "", conf)), accept
+            cast(Resolution, _Probe(_STATUSES[st], _REASONS[r], country or "", conf)), accept
         ).value
         for st, r, _, conf, country in combos.iter_rows()
     ]
     combos = combos.select(inputs).with_columns(pl.Series("_settled", settled, dtype=pl.String))
     return (
-        rows.join(combos, on=inputs, how="left", nulls_equal=True, maintain_order="left")
+        rows.join(combos, on=inputs, how="left", nulls_equal=True)
         .with_columns(pl.col("_settled").alias("status"))
         .drop("_placed", "_settled")
     )

@@ -2,11 +2,14 @@
 
 Every column is read as text (CSV, TSV) or with its own type (Parquet), so
 nothing but the added geo columns changes; rows keep their order. Files are
-read twice in a streaming way: once for the location column (distinct values
-and counts), once to write the output, so memory follows the number of
-distinct strings, not the number of rows. JSON Lines records are parsed here,
-keeping the original text of each value, so both passes read a record's
-location the same way and nothing is keyed on a re-serialised value.
+read twice in a streaming way, in bounded chunks: once for the location column
+(distinct values and counts), once to write the output, so memory follows the
+number of distinct strings, not the number of rows. A small CSV or TSV file is
+held in memory instead (``hold``): read once, each row's geo columns taken by
+its position among the distinct values, the same bytes written. JSON Lines
+records are parsed here, keeping the original text of each value, so both
+passes read a record's location the same way and nothing is keyed on a
+re-serialised value.
 
 Every file a run writes (the output, the bad lines, the report) is a
 ``Target``, checked before any work: not the input, not another file of the
@@ -93,6 +96,13 @@ _HEAD = 8192  # bytes read to tell what a file is
 # A CSV or TSV file up to this size is read into memory once for both passes (counting
 # and writing); a larger one is streamed twice, so memory follows its distinct values.
 IN_MEMORY_BYTES = 128 << 20
+_WRITE_ROWS = 1 << 17  # rows of a held table written at once
+# Streaming a CSV file not held in memory, polars reads it in chunks of this many bytes
+# (its POLARS_CSV_CHUNK_SIZE; its own chunks are far larger) and counts rows by reading,
+# not through a map of the whole file (POLARS_NO_FAST_FILE_COUNT): memory then follows
+# the distinct values, not the size of the file. What is read and written is the same
+# (a Parquet output keeps polars' own chunks: its row groups follow them).
+_STREAMING = {"POLARS_CSV_CHUNK_SIZE": str(4 << 20), "POLARS_NO_FAST_FILE_COUNT": "1"}
 # Control bytes other than tab, line feed and carriage return. Text holds almost none;
 # random or binary data about one byte in nine (30 of 256 values). More than one in
 # twenty, and at least four, means binary (from memory, not tuned).
@@ -125,11 +135,27 @@ class Source:
     columns: list[str] | None = None  # the header, once read
     notes: list[str] = field(default_factory=list)  # what reading did that a user should know
     frame: pl.DataFrame | None = None  # the whole table, read once, when it is small (``hold``)
+    # Of a held table: a column's distinct values and each row's position among them
+    # (``distinct_values``), for the write to take each row's geo columns by position.
+    positions: dict[str, tuple[pl.Series, pl.Series]] = field(default_factory=dict)
 
     def cleanup(self) -> None:
         for p in self.temp:
             with contextlib.suppress(OSError):
                 p.unlink()
+
+
+@contextlib.contextmanager
+def _bounded_reads(bounded: bool = True) -> Iterator[None]:
+    """Polars reads files in bounded chunks (``_STREAMING``) while the block runs, unless
+    not ``bounded``; a setting the user gave polars stays as it is."""
+    added = [name for name in _STREAMING if bounded and name not in os.environ]
+    os.environ.update({name: _STREAMING[name] for name in added})
+    try:
+        yield
+    finally:
+        for name in added:
+            os.environ.pop(name, None)
 
 
 def printable(text: str, limit: int = 200) -> str:
@@ -910,7 +936,8 @@ def count_values(source: Source, column: str) -> tuple[dict[str | None, int], in
         _refuse_nested_location(source, column)
     try:
         lf = _scan(source).select(pl.col(column).cast(pl.String))
-        df = lf.group_by(column).len().collect(engine="streaming")
+        with _bounded_reads(source.frame is None):
+            df = lf.group_by(column).len().collect(engine="streaming")
         values = df.get_column(column).to_list()
     except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
@@ -949,13 +976,41 @@ def distinct_values(source: Source, column: str) -> tuple[pl.DataFrame, int]:
         return frame, total
     if source.format == "parquet":
         _refuse_nested_location(source, column)
+    held = source.frame
+    if held is not None and held.schema[column] == pl.String:
+        return _distinct_held(source, held, column)
     try:
         lf = _scan(source).select(pl.col(column).cast(pl.String).alias("value"))
         counted = lf.group_by("value").agg(pl.len().cast(pl.Int64).alias("rows"))
-        frame = counted.collect(engine="in-memory" if source.frame is not None else "streaming")
+        if source.frame is not None:
+            frame = counted.collect(engine="in-memory")
+        else:
+            with _bounded_reads():
+                frame = counted.collect(engine="streaming")
     except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
     return frame, int(frame.get_column("rows").sum())
+
+
+def _distinct_held(source: Source, frame: pl.DataFrame, column: str) -> tuple[pl.DataFrame, int]:
+    """``distinct_values`` of a held table's text column, in one pass that also keeps each
+    row's position among them (``Source.positions``)."""
+    try:
+        groups = (
+            pl.DataFrame([frame.get_column(column).alias("value")])
+            .with_row_index("row")
+            .group_by("value")
+            .agg(pl.col("row"))
+            .with_row_index("at")
+        )
+        taken = groups.select("at", "row").explode("row")
+        at = pl.zeros(frame.height, dtype=taken.schema["at"], eager=True)
+        at = at.scatter(taken.get_column("row"), taken.get_column("at"))
+    except _POLARS_ERRORS as exc:
+        raise _polars_error(source, exc) from exc
+    counted = groups.select("value", pl.col("row").list.len().cast(pl.Int64).alias("rows"))
+    source.positions[column] = (counted.get_column("value"), at)
+    return counted, frame.height
 
 
 def find_ragged(source: Source, expected: int) -> list[int]:
@@ -986,7 +1041,7 @@ def find_ragged(source: Source, expected: int) -> list[int]:
             infer_schema=False,
             encoding="utf8",
         )
-        suspects = (
+        screen = (
             lines.with_row_index("n")
             .filter(
                 pl.col("line")
@@ -996,8 +1051,9 @@ def find_ragged(source: Source, expected: int) -> list[int]:
             )
             .select("n")
             .head(1)
-            .collect(engine="streaming")
         )
+        with _bounded_reads():
+            suspects = screen.collect(engine="streaming")
     except _POLARS_ERRORS:
         suspects = None  # a line with \x1f in it, or similar: check exactly
     if suspects is not None and suspects.height == 0:
@@ -1084,7 +1140,8 @@ def _count_rows(path: Path, fmt: str, separator: str = ",") -> int:
         encoding="utf8",
         raise_if_empty=False,
     )
-    return int(lf.select(pl.len()).collect().item())
+    with _bounded_reads(path.stat().st_size > IN_MEMORY_BYTES):
+        return int(lf.select(pl.len()).collect().item())
 
 
 def check_writable_as(source: Source, out_fmt: str) -> None:
@@ -1242,6 +1299,8 @@ def _write_polars(
         values = geo.get_column("value")
         if schema[column] == pl.String:  # joined on the text itself: missing meets missing
             table = _join_table(geo, geo_names, typed, values.alias(column))
+            if not typed and _write_held(source, column, table, out_fmt, tmp):
+                return
             joined = lf.join(
                 table.lazy(), on=column, how="left", maintain_order="left", nulls_equal=True
             )
@@ -1257,14 +1316,41 @@ def _write_polars(
                 .join(table.lazy(), on=key, how="left", maintain_order="left")
                 .drop(key)
             )
-        if out_fmt == "parquet":
-            joined.sink_parquet(tmp, maintain_order=True)
-        elif out_fmt == "jsonl":
-            joined.sink_ndjson(tmp, maintain_order=True)
-        else:
-            joined.sink_csv(tmp, separator="\t" if out_fmt == "tsv" else ",", maintain_order=True)
+        # Parquet keeps polars' own chunks: its row groups follow how the input was read.
+        with _bounded_reads(source.frame is None and out_fmt != "parquet"):
+            if out_fmt == "parquet":
+                joined.sink_parquet(tmp, maintain_order=True)
+            elif out_fmt == "jsonl":
+                joined.sink_ndjson(tmp, maintain_order=True)
+            else:
+                sep = "\t" if out_fmt == "tsv" else ","
+                joined.sink_csv(tmp, separator=sep, maintain_order=True)
     except _POLARS_ERRORS as exc:
         raise _polars_error(source, exc) from exc
+
+
+def _write_held(source: Source, column: str, table: pl.DataFrame, out_fmt: str, tmp: Path) -> bool:
+    """CSV or TSV from a table held in memory (``hold``) whose distinct values
+    ``distinct_values`` counted, the bytes the streaming join writes: each row's geo columns
+    are taken from ``table`` (``_join_table``'s, one row per text of ``column``) by the
+    row's position among those values, ``_WRITE_ROWS`` rows at a time. False, and nothing
+    written, for a table not held or a ``table`` not one row per value (the join then
+    repeats rows, for the row count to catch)."""
+    if source.frame is None or column not in source.positions:
+        return False
+    values, at = source.positions[column]
+    table = pl.DataFrame([values.alias(column)]).join(
+        table, on=column, how="left", maintain_order="left", nulls_equal=True
+    )
+    if table.height != values.len():
+        return False
+    geo, frame, sep = table.drop(column), source.frame, "\t" if out_fmt == "tsv" else ","
+    with open(tmp, "wb") as fh:  # a slice at a time: the geo columns of a slice only
+        for start in range(0, max(frame.height, 1), _WRITE_ROWS):
+            part = frame.slice(start, _WRITE_ROWS)
+            part = part.hstack(geo[at.slice(start, _WRITE_ROWS)].get_columns())
+            part.write_csv(fh, separator=sep, include_header=not start)
+    return True
 
 
 def _write_from_jsonl(
