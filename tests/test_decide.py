@@ -300,3 +300,244 @@ def test_rerank_changes_eligible_answers_in_place_without_setting_status():
     assert results["valencia"].country == "VE"
     assert results["valencia"].status is Status.MATCHED
     assert not prior.rerank(results, {"caracas": 10, "valencia": 3}, IDENTITY)
+
+
+# -- the shortcuts of the decision match the rules they stand for ---------------
+def _random_readings(rng, n: int) -> list[Reading]:
+    """Readings of mixed kinds, countries, origins and spellings (ties included)."""
+    kinds = ["city", "city", "subdivision", "country", "area", "region"]
+    origins = ["name", "alt", "short", "alias", "code3", "translation", "lower_sub", "flag"]
+    out = []
+    for _ in range(n):
+        kind = rng.choice(kinds)
+        cc = "" if kind == "region" else rng.choice(["GB", "HK", "CN", "FR", "PF", "US"])
+        pop = rng.choice([0, 300, 5_000, 20_000, 150_000, 2_000_000, 9_000_000])
+        name = rng.choice(["Perth", "Paris", "Reading"])
+        p = place(kind, cc, name, pop, f"{cc}-1", rng.choice([0, 20, 90]))
+        origin = rng.choice(origins)
+        weight = rng.choice([0.0, place_weight(p, origin), 300.0])
+        out.append(Reading(p, origin, weight, rng.choice([1.0, 1.0, 0.8])))
+    return out
+
+
+def _country_shares_by_definition(readings: list[Reading]) -> dict[str, float]:
+    import math
+    from collections import defaultdict
+
+    from geonorm.resolve.tuning import FAME_TYPICAL, SIMILARITY_POWER
+
+    d: dict[str, float] = defaultdict(float)
+    for r in readings:
+        if r.place.cc:
+            w = r.weight * r.similarity**SIMILARITY_POWER
+            if r.place.kind == "city":
+                w *= math.sqrt((1 + r.place.fame) / (1 + FAME_TYPICAL))
+            d[r.place.cc] = max(d[r.place.cc], w)
+    total = sum(d.values())
+    return {c: v / total for c, v in d.items()} if total > 0 else {}
+
+
+def test_country_shares_and_heaviest_match_their_definitions_to_the_last_digit():
+    import random
+
+    from geonorm.resolve.decide import _heaviest, _top
+
+    rng = random.Random(3)
+    for n in [0, 1, 2, 3, 5, 8, 13] * 40:
+        readings = _random_readings(rng, n)
+        shares = country_shares(readings)
+        want = _country_shares_by_definition(readings)
+        assert list(shares.items()) == list(want.items())  # same values, same order
+        assert _heaviest(readings) is max(readings, key=lambda r: r.weight, default=None)
+        if shares:
+            assert _top(shares) == max(shares, key=lambda c: (shares[c], c))
+    assert _top({"FR": 0.5, "DE": 0.5, "AT": 0.25}) == "FR"  # ties go to the later code
+
+
+def test_prune_skips_only_rules_that_would_change_nothing():
+    import random
+
+    from geonorm.resolve.mentions import PRUNE_RULES
+
+    rng = random.Random(4)
+    for n in [1, 2, 2, 3, 3, 4, 6, 12] * 250:
+        mentions = [
+            mention("perth", *_random_readings(rng, n), start=i) for i in range(rng.choice([1, 2]))
+        ]
+        several = len(mentions) > 1
+        want = []
+        for m in mentions:
+            readings = m.readings
+            for rule in PRUNE_RULES:
+                readings = rule(readings, several)
+            if readings:
+                want.append(replace(m, readings=readings))
+        assert prune(mentions) == want
+
+
+def test_spans_read_by_one_stage_keep_their_mention_and_inputs_never_change():
+    from geonorm.resolve.mentions import merge_by_span
+
+    perth_au, perth_gb = reading(PERTH_AU), reading(PERTH_GB)
+    city = mention("perth", perth_au)
+    sub = mention("perth", perth_gb)
+    other = mention("scotland", reading(SCOTLAND), part=1)
+    by_span = merge_by_span([city, sub, other])
+    assert by_span[(0, 0, "perth")].readings == [perth_au, perth_gb]
+    assert by_span[(1, 0, "scotland")] is other
+    assert city.readings == [perth_au] and sub.readings == [perth_gb]
+
+
+def test_a_reading_reweighed_keeps_every_other_field():
+    import dataclasses
+
+    from geonorm.resolve.mentions import _reweighed
+
+    r = Reading(PERTH_GB, "alt", 300.0, 0.8)
+    assert _reweighed(r, 0.5) == dataclasses.replace(r, weight=150.0)
+    assert {f.name for f in dataclasses.fields(Reading)} == {
+        "place",
+        "origin",
+        "weight",
+        "similarity",
+    }
+
+
+def test_code_text_needs_a_sign_every_code_form_has():
+    from geonorm.resolve.mentions import _CODE_SIGN, _CODE_TOKEN, code_text
+
+    tokens = [
+        "https://x.org/a",
+        "www.example",
+        "~/notes",
+        "../up",
+        "c:\\temp",
+        "<b>",
+        "x</i>",
+        "data.csv",
+        "a{b",
+        "x;",
+        "$HOME",
+        "`ls`",
+        "f()",
+    ]
+    for t in tokens:
+        assert _CODE_TOKEN.match(t) and _CODE_SIGN.search(t), t
+    assert code_text(normalize("www.example.com ~/notes"))
+    assert not code_text(normalize("Perth WA"))
+
+
+def test_text_language_ties_go_to_the_earlier_language():
+    from geonorm.resolve.mentions import LANGUAGES, text_language
+
+    assert text_language([]) == 0
+    assert text_language(["zzqqxv"]) == 0
+    assert LANGUAGES[text_language(["the", "city"])] == "en"
+
+
+def test_readings_in_a_country_include_its_territories():
+    from geonorm.resolve.decide import _in_country
+
+    hk, cn, fr = reading(HONG_KONG_CITY), reading(CHINA), reading(place("city", "FR", "Paris", 2))
+    assert _in_country([hk, cn, fr], "CN") == [hk, cn]
+    assert _in_country([hk, cn, fr], "FR") == [fr]
+    assert _in_country([hk, cn, fr], "HK") == [hk]
+
+
+def test_the_text_language_is_read_only_when_a_word_is_ordinary_somewhere():
+    from geonorm.resolve import decide as decide_module
+    from geonorm.resolve.decide import _unexplained
+    from geonorm.resolve.mentions import _misspelt, _typed_words, text_language, word_zipf
+    from geonorm.resolve.tuning import (
+        MAX_STRAY_WORDS,
+        ORDINARY_STRAY_WEIGHT,
+        ORDINARY_WORD_ZIPF,
+        STRAY_WORD_FACTOR,
+    )
+
+    texts = ["Saturn", "Satun", "Perth zzqqx", "Perth city", "Perth ciudad", "Perth qqz ville, x"]
+    for text in texts:
+        query = normalize(text)
+        lang = text_language(t.orig for p in query.parts for t in p.tokens)
+        words = [(pi, i) for pi, p in enumerate(query.parts) for i in range(len(p.tokens))]
+        respelt = [
+            Mention(query.parts[pi].tokens[i].key, pi, i, [reading(PERTH_GB)], "fuzzy")
+            for pi, i in words
+        ]
+        want = [
+            m
+            for m in respelt
+            if not (
+                len(_typed_words(query, m)) == 1
+                and word_zipf(_typed_words(query, m)[0])[lang] >= ORDINARY_WORD_ZIPF
+            )
+        ]
+        assert _misspelt(query, respelt) == want, text
+        perth = mention("perth", reading(PERTH_GB))
+        place = decide_module.weigh(decide_module.Group([perth]), [])
+        score = 1.0
+        for pi, part in enumerate(query.parts):
+            kept = [t.key for t in part.tokens if t.key not in decide_module.STOPWORDS]
+            if pi == 0:
+                stray = [w for w in kept if w != "perth"]
+                count = sum(
+                    ORDINARY_STRAY_WEIGHT if word_zipf(w)[lang] >= ORDINARY_WORD_ZIPF else 1.0
+                    for w in stray
+                )
+                score *= STRAY_WORD_FACTOR ** min(count, MAX_STRAY_WORDS)
+            elif kept and not part.street:
+                score *= decide_module.LOOSE_PART_FACTOR
+        assert _unexplained(1.0, query, [place]) == score, text
+    assert _misspelt(normalize("Saturn"), [mention("saturn", reading(PERTH_GB))]) == []
+
+
+def test_trusted_mentions_match_their_definition():
+    import random
+
+    from geonorm.resolve.mentions import _CODE_ORIGINS, _TRUSTED_ORIGINS, _trusted
+
+    rng = random.Random(6)
+    origins = ["name", "alt", "alias", "code2", "code3", "postal", "sub_code", "abbreviation"]
+    for _ in range(400):
+        readings = [Reading(PERTH_GB, rng.choice(origins), 1.0) for _ in range(rng.randint(1, 3))]
+        m = Mention("man", 0, 0, readings, rng.choice(["name", "name", "flag", "postcode"]))
+        typed = rng.choice([["man"], ["MAN"], ["M.A.N."], ["Man", "MAN"]])
+        capitals = all(w.replace(".", "").isupper() for w in typed)
+        want = m.source in ("flag", "postcode") or any(
+            r.origin in _TRUSTED_ORIGINS and (capitals or r.origin not in _CODE_ORIGINS)
+            for r in readings
+        )
+        assert _trusted(m, typed) == want
+
+
+def test_main_name_demotes_variants_as_defined():
+    import random
+
+    from geonorm.resolve.mentions import _main_name
+    from geonorm.resolve.tuning import (
+        MAIN_NAME_OVER_TRANSLATION_POP,
+        MAIN_NAME_POP,
+        VARIANT_DEMOTION,
+    )
+
+    rng = random.Random(8)
+    for n in [1, 2, 3, 5, 8] * 100:
+        readings = _random_readings(rng, n)
+        main = max(
+            (r.place.pop for r in readings if r.place.kind == "city" and r.origin == "name"),
+            default=0,
+        )
+        want = readings
+        if main >= MAIN_NAME_POP:
+            want = [
+                replace(r, weight=r.weight * VARIANT_DEMOTION)
+                if (r.origin in ("alt", "short") and r.place.kind == "city")
+                or (
+                    r.origin == "translation"
+                    and r.place.kind == "country"
+                    and main >= MAIN_NAME_OVER_TRANSLATION_POP
+                )
+                else r
+                for r in readings
+            ]
+        assert _main_name(readings, n > 1) == want

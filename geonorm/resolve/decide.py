@@ -20,10 +20,11 @@ The status set here is provisional: ``resolution.settle`` sets the final one.
 
 from __future__ import annotations
 
+import itertools
 import math
-from collections import defaultdict
 from collections.abc import Iterable, Iterator, Mapping, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 from operator import attrgetter
 
 from .index import Place
@@ -95,16 +96,39 @@ def _is_container(r: Reading) -> bool:
     return r.place.kind in _CONTAINER_KINDS
 
 
+def _territories_of() -> dict[str, list[str]]:
+    """Each sovereign's territories (the inverse of ``SOVEREIGN``)."""
+    territories: dict[str, list[str]] = {}
+    for territory, sovereign in SOVEREIGN.items():
+        territories.setdefault(sovereign, []).append(territory)
+    return territories
+
+
+_TERRITORIES = _territories_of()
+
+
 def _top(shares: Mapping[str, float]) -> str:
     """The country with the largest share; ties go to the later code."""
-    return max(shares, key=lambda c: (shares[c], c))
+    best: str | None = None
+    top = 0.0
+    for c, v in shares.items():
+        if best is None or v > top or (v == top and c > best):
+            best, top = c, v
+    if best is None:
+        raise ValueError("no shares")
+    return best
 
 
 _WEIGHT = attrgetter("weight")
 
 
 def _heaviest(readings: Iterable[Reading]) -> Reading | None:
-    return max(readings, key=_WEIGHT, default=None)
+    """The first of the heaviest readings (as ``max`` by weight), or None."""
+    best = None
+    for r in readings:
+        if best is None or r.weight > best.weight:
+            best = r
+    return best
 
 
 @dataclass
@@ -126,7 +150,7 @@ class Group:
 
     def is_region(self) -> bool:
         """Only world regions ("Southeast Asia"): no country."""
-        return all(r.place.kind == "region" for r in self.readings)
+        return all(r.place.kind == "region" for m in self.mentions for r in m.readings)
 
 
 @dataclass(frozen=True)
@@ -169,19 +193,24 @@ def group_places(mentions: Sequence[Mention]) -> tuple[list[Group], list[Mention
     One flag or postcode (or several of one country) qualifies the whole text;
     flags of several countries are places of their own.
     """
-    marks = [m for m in mentions if m.source in ("flag", "postcode")]
-    rest = [m for m in mentions if m.source not in ("flag", "postcode")]
+    marks: list[Mention] = []
+    rest: list[Mention] = []
+    for m in mentions:
+        (marks if m.source in ("flag", "postcode") else rest).append(m)
     qualifiers: list[Mention] = []
-    if len({r.place.cc for m in marks for r in m.readings}) <= 1:
+    if not marks or len({r.place.cc for m in marks for r in m.readings}) <= 1:
         qualifiers = marks
     else:
         rest = marks + rest
     groups: list[Group] = []
     for m in rest:
-        joined = _joined(groups[-1], m) if groups else None
+        if not groups:
+            groups.append(Group([m]))
+            continue
+        joined = _joined(groups[-1], m)
         if joined is not None:
             groups[-1].mentions.append(joined)
-        elif groups and all(r.origin in ("postal", "sub_code") for r in m.readings):
+        elif all(r.origin in ("postal", "sub_code") for r in m.readings):
             continue  # an abbreviation qualifies what precedes it; one that fits nothing is noise
         else:
             groups.append(Group([m]))
@@ -212,6 +241,8 @@ def _containers_of(g: Group, m: Mention) -> list[Reading]:
     countries = g.countries()
     countries |= {SOVEREIGN.get(c, c) for c in countries}
     containers = [r for r in m.readings if _is_container(r) and r.place.cc in countries]
+    if not any(r.place.kind == "subdivision" for r in containers):
+        return containers
     city_subs = {p.place.sub for p in g.readings if p.place.kind == "city"}
     has_point = g.has_point()
     return [
@@ -231,25 +262,48 @@ def country_shares(readings: Iterable[Reading]) -> dict[str, float]:
     (relative to a typical ``FAME_TYPICAL``): size and fame, as a reader would
     weigh them (Barcelona, Spain over Barcelona, Venezuela).
     """
-    d: dict[str, float] = defaultdict(float)
+    d: dict[str, float] = {}
     for r in readings:
-        if r.place.cc:
-            w = r.weight * r.similarity**SIMILARITY_POWER
-            if r.place.kind == "city":
-                w *= math.sqrt((1 + r.place.fame) / (1 + FAME_TYPICAL))
-            d[r.place.cc] = max(d[r.place.cc], w)
+        place = r.place
+        cc = place.cc
+        if cc:
+            w = r.weight
+            if r.similarity != 1.0:
+                w *= r.similarity**SIMILARITY_POWER
+            if place.kind == "city":
+                w *= _fame_factor(place.fame)
+            # The heaviest reading, as ``max(d.get(cc, 0.0), w)``.
+            old = d.get(cc)
+            if old is None:
+                d[cc] = w if w > 0.0 else 0.0
+            elif w > old:
+                d[cc] = w
     total = sum(d.values())
-    return {c: v / total for c, v in d.items()} if total > 0 else {}
+    if not total > 0:
+        return {}
+    return {c: v / total for c, v in d.items()}
+
+
+@lru_cache(maxsize=4096)
+def _fame_factor(fame: int) -> float:
+    """How much a city's fame adds to its weight (see ``country_shares``)."""
+    return math.sqrt((1 + fame) / (1 + FAME_TYPICAL))
 
 
 def weigh(group: Group, qualifiers: Sequence[Mention]) -> Weighed:
     """The country distribution of one place, and each mention's consistent readings."""
     mentions = group.mentions + list(qualifiers)
-    allowed_cc, allowed_sub = _container_constraints([m for m in mentions if m.is_container])
-    kept = [
-        m.readings if m.is_container else _consistent(m.readings, allowed_cc, allowed_sub)
-        for m in mentions
-    ]
+    containers = [m.is_container for m in mentions]
+    if True in containers:
+        allowed_cc, allowed_sub = _container_constraints(
+            [m for m, c in zip(mentions, containers, strict=True) if c]
+        )
+        kept = [
+            m.readings if c else _consistent(m.readings, allowed_cc, allowed_sub)
+            for m, c in zip(mentions, containers, strict=True)
+        ]
+    else:
+        kept = [m.readings for m in mentions]
     return Weighed(group, tuple(qualifiers), _combine(kept), kept)
 
 
@@ -264,7 +318,8 @@ def _container_constraints(containers: list[Mention]) -> tuple[set[str] | None, 
     allowed_sub: set[str] = set()
     for m in containers:
         ccs = {r.place.cc for r in m.readings if r.place.cc}
-        ccs |= {c for c, s in SOVEREIGN.items() if s in ccs}
+        for sovereign in list(ccs):
+            ccs.update(_TERRITORIES.get(sovereign, ()))
         if ccs:
             allowed_cc = ccs if allowed_cc is None else (allowed_cc & ccs) or allowed_cc
         heaviest = max(m.readings, key=_WEIGHT)
@@ -310,6 +365,8 @@ def _combine(kept: list[list[Reading]]) -> dict[str, float]:
 # -- 3. places that are not places of their own -------------------------------
 def drop_minor_places(places: list[Weighed]) -> list[Weighed]:
     """Drop places that say nothing next to the others (never all of them)."""
+    if len(places) < 2:
+        return places
     for step in (_drop_ordinary_words, _drop_nationalities, _drop_vague, _drop_strays):
         if len(places) > 1:
             places = step(places)
@@ -379,8 +436,12 @@ def decide(query: Query, mentions: list[Mention], fictional: Sequence[str] = ())
     every = places
     places, by_cue = current_places(places, cue_roles(query, mentions) if len(places) > 1 else {})
     # Sorted: sums over the joint distribution must not depend on the hash seed.
-    countries = sorted(set().union(*(w.dist.keys() for w in places)))
-    joint = {c: math.prod(w.dist.get(c, 0.0) for w in places) for c in countries}
+    if len(places) == 1:
+        dist = places[0].dist
+        joint = {c: dist[c] for c in sorted(dist)}  # the product of one share is the share
+    else:
+        countries = sorted(set().union(*(w.dist.keys() for w in places)))
+        joint = {c: math.prod(w.dist.get(c, 0.0) for w in places) for c in countries}
     several = _several_countries(places, joint)
     if several is not None:
         return several
@@ -458,6 +519,8 @@ def current_places(
 def _several_countries(places: list[Weighed], joint: dict[str, float]) -> Resolution | None:
     """Review with one candidate per place when the places' best countries differ and
     no single country explains them all better than ``MULTI_PENALTY`` allows."""
+    if len(places) == 1:
+        return None  # one place has one best country
     bests = [w.best_country() for w in places]
     distinct = sorted(set(bests), key=bests.index)
     if len(distinct) == 1:
@@ -480,23 +543,33 @@ def _one_country(
 ) -> Resolution:
     total = sum(joint.values())
     top = _top(joint)
+    ranked = sorted(joint.items(), key=_neg_share) if len(joint) > 1 else joint.items()
     evidence = {
         c: round(v / total, 4)
-        for c, v in sorted(joint.items(), key=lambda t: -t[1])[:MAX_CANDIDATES]
+        for c, v in itertools.islice(ranked, MAX_CANDIDATES)
         if v / total >= MIN_EVIDENCE_SHARE
     }
     res = Resolution(Status.MATCHED, Reason.CITY, country=top, evidence=evidence)
     fill_in(res, places)
     res.score = evidence_score(joint[top] / total, top, query, places, former)
-    every = [r for w in places for r in w.readings()]
+    every = [r for w in places for rs in w.kept for r in rs]
     res.candidates = [candidate(c, every, evidence[c]) for c in evidence]
     return res
 
 
+def _neg_share(item: tuple[str, float]) -> float:
+    """Sorts (country, share) pairs by share, largest first (a stable sort keeps ties)."""
+    return -item[1]
+
+
 def candidate(cc: str, readings: Iterable[Reading], score: float) -> Candidate:
     """The candidate for country ``cc``: its heaviest city, else its one subdivision."""
-    flat = list(readings)
-    best = _heaviest(r for r in flat if r.place.kind == "city" and r.place.cc == cc)
+    flat = readings if isinstance(readings, list) else list(readings)
+    best = None
+    for r in flat:
+        place = r.place
+        if place.kind == "city" and place.cc == cc and (best is None or r.weight > best.weight):
+            best = r
     if best:
         p = best.place
         return Candidate(cc, p.sub, p.name, p.lat, p.lon, round(score, 4))
@@ -527,6 +600,8 @@ def fill_in(res: Resolution, places: list[Weighed]) -> None:
 
 def _in_country(readings: list[Reading], cc: str) -> list[Reading]:
     """Readings in ``cc`` or in one of its territories."""
+    if cc not in _TERRITORIES:
+        return [r for r in readings if r.place.cc == cc]
     return [r for r in readings if r.place.cc == cc or SOVEREIGN.get(r.place.cc) == cc]
 
 
@@ -559,13 +634,10 @@ def _qualifying_subdivisions(
 ) -> set[str]:
     """Subdivisions a container mention names, unless it is mainly the country:
     "Mexico" as a qualifier is the country, not also the State of Mexico."""
+    if heaviest is None or heaviest.place.kind == "country":
+        return set()
     cont = [r for r in in_country if r.place.kind in ("subdivision", "area") and r.place.sub]
-    if (
-        cont
-        and all(_is_container(r) for r in readings)
-        and heaviest is not None
-        and heaviest.place.kind != "country"
-    ):
+    if cont and all(_is_container(r) for r in readings):
         return {r.place.sub for r in cont}
     return set()
 
@@ -674,9 +746,18 @@ def city_point(readings: list[Reading]) -> tuple[Reading | None, bool]:
     another subdivision wins unless the city is at least half its size;
     between half and the same size, only the country is determined.
     """
-    best = _heaviest(r for r in readings if r.place.kind == "city")
+    best = None
+    others = False
+    for r in readings:
+        if r.place.kind == "city":
+            if best is None or r.weight > best.weight:
+                best = r
+        else:
+            others = True
     if best is None:
         return None, False
+    if not others:
+        return best, False  # no country and no subdivision of the name
     # A translation is weaker: Finnish "Brasilia" is Brazil, but the city it names is meant.
     countries = [r for r in readings if r.place.kind == "country" and r.origin != "translation"]
     if countries and best.place.pop < CITY_OF_COUNTRY_SHARE * max(c.place.pop for c in countries):
@@ -714,12 +795,13 @@ def evidence_score(
     lowered for typos, unexplained words, a bare small town, a nationality word and
     a place that may be an ordinary word. Places the text marks as ``former``
     explain their words."""
-    readings = [r for w in places for r in w.readings() if r.place.cc == country]
+    readings = [r for w in places for rs in w.kept for r in rs if r.place.cc == country]
     score = _spelling(p, readings)
-    score = _unexplained(score, query, [*places, *former])
-    score = _bare_town(score, readings, places)
-    score = _only_nationality(score, readings)
-    score *= min(1.0, min(strength(w) for w in places) / PRIOR_FULL)
+    score = _unexplained(score, query, [*places, *former] if former else places)
+    best = _heaviest(readings)
+    score = _bare_town(score, best, places)
+    score = _only_nationality(score, best, readings)
+    score *= min(1.0, min([strength(w) for w in places]) / PRIOR_FULL)
     return max(SCORE_FLOOR, min(SCORE_CEILING, score))
 
 
@@ -743,12 +825,21 @@ def _unexplained(score: float, query: Query, places: list[Weighed]) -> float:
         if pi in parts_with:
             used = {w for m in named if m.part == pi for w in m.text.split()}
             stray = [w for w in words if w not in used]
-            if stray and lang < 0:
+            if not stray:
+                continue  # a factor of STRAY_WORD_FACTOR ** 0
+            if lang < 0 and _any_ordinary(stray):
                 lang = text_language(t.orig for p in query.parts for t in p.tokens)
-            score *= STRAY_WORD_FACTOR ** min(_stray_count(stray, lang), MAX_STRAY_WORDS)
+            # Without an ordinary word in any language, every language counts the same.
+            count = _stray_count(stray, max(lang, 0))
+            score *= STRAY_WORD_FACTOR ** min(count, MAX_STRAY_WORDS)
         elif words and not part.street:
             score *= LOOSE_PART_FACTOR
     return score
+
+
+def _any_ordinary(words: list[str]) -> bool:
+    """Whether some word is an ordinary word of some language."""
+    return any(max(word_zipf(w)) >= ORDINARY_WORD_ZIPF for w in words)
 
 
 def _stray_count(stray: list[str], lang: int) -> float:
@@ -758,10 +849,9 @@ def _stray_count(stray: list[str], lang: int) -> float:
     )
 
 
-def _bare_town(score: float, readings: list[Reading], places: list[Weighed]) -> float:
+def _bare_town(score: float, best: Reading | None, places: list[Weighed]) -> float:
     """A bare town is weaker evidence the smaller it is, and weaker still when met
-    only by an alternate name."""
-    best = _heaviest(readings)
+    only by an alternate name (``best``: the heaviest reading in the country)."""
     if (
         best
         and best.place.kind == "city"
@@ -774,8 +864,7 @@ def _bare_town(score: float, readings: list[Reading], places: list[Weighed]) -> 
     return score
 
 
-def _only_nationality(score: float, readings: list[Reading]) -> float:
-    best = _heaviest(readings)
+def _only_nationality(score: float, best: Reading | None, readings: list[Reading]) -> float:
     if best and best.origin == "adjective" and all(r.origin == "adjective" for r in readings):
         score *= ADJECTIVE_FACTOR
     return score

@@ -88,22 +88,36 @@ def gather(
         covered -= _words_of(query, pi)
     respelt = fuzzy.match_free_words(query, covered)
     for pi, part in enumerate(query.parts):
-        if pi in weak:
-            continue
+        if pi in weak or part.street or len(part.tokens) < 2:
+            continue  # no whole part to respell (``_has_loose_words``)
         whole = _respell_whole_part(query, pi, part, by_span, covered, fuzzy)
         if whole is not None:
             weak.add(pi)
             respelt = [m for m in respelt if m.part != pi] + [whole]
     _replace_weak(by_span, _misspelt(query, respelt), weak)
-    kept = prune(whole_text + sorted(by_span.values(), key=lambda m: (m.part, m.start)))
-    return weigh_words(query, [_as_typed(query, m) for m in kept])
+    kept = prune(whole_text + sorted(by_span.values(), key=_POSITION))
+    typed = [_typed_words(query, m) for m in kept]
+    return weigh_words(
+        query, [_as_typed(query, m, t) for m, t in zip(kept, typed, strict=True)], typed
+    )
 
 
-def _as_typed(query: Query, m: Mention) -> Mention:
+_POSITION = attrgetter("part", "start")
+
+
+def _reweighed(r: Reading, factor: float) -> Reading:
+    """``r`` with its weight times ``factor`` (``dataclasses.replace``, without its cost:
+    a field added to ``Reading`` must be added here too)."""
+    return Reading(r.place, r.origin, r.weight * factor, r.similarity)
+
+
+def _as_typed(query: Query, m: Mention, typed_words: list[str] | None = None) -> Mention:
     """Accents typed are meant: where a place is called exactly as typed ("Münster"),
     towns and provinces whose name is the same without the accents (Ireland's
-    Munster) are demoted."""
-    typed = " ".join(_typed_words(query, m)).casefold()
+    Munster) are demoted. ``typed_words`` are the mention's ``_typed_words``."""
+    if typed_words is None:
+        typed_words = _typed_words(query, m)
+    typed = " ".join(typed_words).casefold()
     if typed.isascii() or not fold(typed).isascii():
         return m  # no accents, or another script: nothing to tell apart
     bare = fold(typed)
@@ -115,7 +129,7 @@ def _as_typed(query: Query, m: Mention) -> Mention:
     if not any(r.place.name.casefold() == typed for r in m.readings):
         return m
     return m.with_readings(
-        [replace(r, weight=r.weight * VARIANT_DEMOTION) if unaccented(r) else r for r in m.readings]
+        [_reweighed(r, VARIANT_DEMOTION) if unaccented(r) else r for r in m.readings]
     )
 
 
@@ -125,24 +139,40 @@ def _misspelt(query: Query, respelt: list[Mention]) -> list[Mention]:
     phrase is still respelt though its pieces are words ("Buenos Aries")."""
     if not respelt:
         return respelt
-    lang = text_language(t.orig for p in query.parts for t in p.tokens)
+    lang = -1  # the text's language, read only for a word common in some language
 
     def spelt_right(m: Mention) -> bool:
+        nonlocal lang
         words = _typed_words(query, m)
-        return len(words) == 1 and word_zipf(words[0])[lang] >= ORDINARY_WORD_ZIPF
+        if len(words) != 1:
+            return False
+        zipf = word_zipf(words[0])
+        if max(zipf) < ORDINARY_WORD_ZIPF:
+            return False  # not an ordinary word in any language
+        if lang < 0:
+            lang = text_language(t.orig for p in query.parts for t in p.tokens)
+        return zipf[lang] >= ORDINARY_WORD_ZIPF
 
     return [m for m in respelt if not spelt_right(m)]
 
 
 def merge_by_span(mentions: Iterable[Mention]) -> dict[SpanKey, Mention]:
-    """One mention per span: later stages' readings of a span join the first stage's."""
+    """One mention per span: later stages' readings of a span join the first stage's.
+
+    A span read by one stage keeps that stage's mention; the mentions given are never
+    changed."""
     by_span: dict[SpanKey, Mention] = {}
+    merged: set[SpanKey] = set()  # keys whose mention is a copy made here
     for m in mentions:
         key = (m.part, m.start, m.text)
-        if key in by_span:
-            by_span[key].readings.extend(m.readings)
-        else:
-            by_span[key] = m.with_readings(list(m.readings))
+        first = by_span.get(key)
+        if first is None:
+            by_span[key] = m
+            continue
+        if key not in merged:
+            merged.add(key)
+            first = by_span[key] = first.with_readings(list(first.readings))
+        first.readings.extend(m.readings)
     return by_span
 
 
@@ -158,12 +188,11 @@ def covered_words(
         return {
             (pi, i) for pi in range(len(query.parts)) for i in range(len(query.parts[pi].tokens))
         }
-    return {
-        (s.part, i)
-        for s in spans
-        for i in range(s.start, s.end)
-        if (s.part, s.start, s.key) in by_span
-    }
+    covered: set[Word] = set()
+    for s in spans:
+        if (s.part, s.start, s.key) in by_span:
+            covered.update([(s.part, i) for i in range(s.start, s.end)])
+    return covered
 
 
 def _words_of(query: Query, pi: int) -> set[Word]:
@@ -186,13 +215,15 @@ def weak_parts(mentions: Iterable[Mention]) -> set[int]:
     a part with a big place, a container, a nickname or a sizeable town met by its
     own name is taken as written.
     """
-    mentions = list(mentions)
-    firm = {
-        m.part
-        for m in mentions
-        if max(r.place.pop for r in m.readings) >= FIRM_PLACE_POP or any(map(_is_firm, m.readings))
-    }
-    return {m.part for m in mentions} - firm
+    parts: set[int] = set()
+    firm: set[int] = set()
+    for m in mentions:
+        parts.add(m.part)
+        if m.part not in firm and any(
+            r.place.pop >= FIRM_PLACE_POP or _is_firm(r) for r in m.readings
+        ):
+            firm.add(m.part)
+    return parts - firm
 
 
 def _respell_whole_part(
@@ -225,9 +256,9 @@ def _respell_whole_part(
 
 def _has_loose_words(pi: int, part: Part, covered: set[Word]) -> bool:
     """A part of several words, not a street line, with a word nothing explained."""
-    words = [t.key for t in part.tokens]
-    if part.street or len(words) < 2:
+    if part.street or len(part.tokens) < 2:
         return False
+    words = [t.key for t in part.tokens]
     return any((pi, i) not in covered and w not in STOPWORDS for i, w in enumerate(words))
 
 
@@ -293,10 +324,10 @@ def _main_name(readings: list[Reading], several: bool) -> list[Reading]:
     """A large place called exactly this outweighs places that only carry the name as
     a variant or former name (Islamabad, not Chittagong's old name), and a country
     whose name this is only in another language (Salvador, Bahia)."""
-    main = max(
-        (r.place.pop for r in readings if r.place.kind == "city" and r.origin == "name"),
-        default=0,
-    )
+    main = 0  # the largest city called exactly this (only its reaching the bars counts)
+    for r in readings:
+        if r.origin == "name" and r.place.kind == "city" and r.place.pop > main:
+            main = r.place.pop
     if main < MAIN_NAME_POP:
         return readings
 
@@ -309,7 +340,9 @@ def _main_name(readings: list[Reading], several: bool) -> list[Reading]:
             and main >= MAIN_NAME_OVER_TRANSLATION_POP
         )
 
-    return [replace(r, weight=r.weight * VARIANT_DEMOTION) if demoted(r) else r for r in readings]
+    if not any(map(demoted, readings)):
+        return readings
+    return [_reweighed(r, VARIANT_DEMOTION) if demoted(r) else r for r in readings]
 
 
 def _nickname(readings: list[Reading], several: bool) -> list[Reading]:
@@ -343,16 +376,46 @@ PRUNE_RULES: tuple[Rule, ...] = (
 )
 
 
+# What a mention's readings must hold for each rule to change anything: some reading
+# of one of the kinds (None: any kind) and some reading of one of the origins (None:
+# any origin). Rules only drop readings or change their weights, so a rule whose
+# trigger the mention's readings lack leaves them as they are whatever ran before it.
+_TRIGGERS: dict[Rule, tuple[frozenset[str] | None, frozenset[str] | None]] = {
+    _country_named: (frozenset({"country"}), frozenset({"name", "alias", "flag"})),
+    _iso_code: (None, frozenset({"code3"})),
+    _area_named: (frozenset({"region", "area"}), None),
+    _main_name: (frozenset({"city"}), frozenset({"name"})),
+    _nickname: (None, frozenset({"alias"})),
+    _hamlet_variant: (frozenset({"city"}), frozenset({"alt", "short"})),
+}
+
+
+@lru_cache(maxsize=1024)
+def _rules_for(kinds: frozenset[str], origins: frozenset[str]) -> tuple[Rule, ...]:
+    """The rules of ``PRUNE_RULES`` that may change readings of these kinds and origins."""
+    rules = []
+    for rule in PRUNE_RULES:
+        trigger_kinds, trigger_origins = _TRIGGERS.get(rule, (None, None))
+        if (trigger_kinds is None or not trigger_kinds.isdisjoint(kinds)) and (
+            trigger_origins is None or not trigger_origins.isdisjoint(origins)
+        ):
+            rules.append(rule)
+    return tuple(rules)
+
+
 def prune(mentions: list[Mention]) -> list[Mention]:
     """Apply ``PRUNE_RULES`` in order to each mention; drop mentions left without readings."""
     several = len(mentions) > 1
     out = []
     for m in mentions:
         readings = m.readings
-        for rule in PRUNE_RULES:
+        kinds = frozenset([r.place.kind for r in readings])
+        origins = frozenset([r.origin for r in readings])
+        for rule in _rules_for(kinds, origins):
             readings = rule(readings, several)
-        if readings:
-            out.append(m.with_readings(readings))
+        if not readings:
+            continue
+        out.append(m if readings is m.readings else m.with_readings(readings))
     return out
 
 
@@ -497,7 +560,7 @@ def text_language(words: Iterable[str]) -> int:
     for w in words:
         for i, z in enumerate(word_zipf(w)):
             totals[i] += z
-    return max(range(len(LANGUAGES)), key=lambda i: (totals[i], -i))
+    return totals.index(max(totals))  # ties go to the earlier language
 
 
 def _typed_words(query: Query, m: Mention) -> list[str]:
@@ -555,11 +618,12 @@ def _trusted(m: Mention, typed: list[str]) -> bool:
     words ("man" may be the Manitoba abbreviation, "MAN" is)."""
     if m.source in ("flag", "postcode"):
         return True
-    capitals = all(w.replace(".", "").isupper() for w in typed)
-    return any(
-        r.origin in _TRUSTED_ORIGINS and (capitals or r.origin not in _CODE_ORIGINS)
-        for r in m.readings
-    )
+    origins = {r.origin for r in m.readings} & _TRUSTED_ORIGINS
+    if not origins:
+        return False
+    if not origins <= _CODE_ORIGINS:
+        return True  # a curated name: trusted however typed
+    return all(w.replace(".", "").isupper() for w in typed)
 
 
 def _named_with_article(m: Mention) -> bool:
@@ -639,27 +703,38 @@ def _words_of_mentions(mentions: Iterable[Mention]) -> set[Word]:
     return {(m.part, m.start + i) for m in mentions for i in range(len(m.text.split()))}
 
 
-def _may_be_ordinary(query: Query, m: Mention) -> bool:
+def _may_be_ordinary(query: Query, m: Mention, typed: list[str] | None = None) -> bool:
     """Whether the mention could be an ordinary word at all: not trusted, and common
     enough in some language, against the renown of its places, to matter (most place
-    names are in no list; "Berlin" is common, but the city more so)."""
-    typed = _typed_words(query, m)
+    names are in no list; "Berlin" is common, but the city more so). ``typed`` are the
+    mention's ``_typed_words``."""
+    if typed is None:
+        typed = _typed_words(query, m)
     content = [w for w in typed if w.casefold() not in _NOT_CONTENT] or typed
-    z = min((_top_zipf(w) for w in content), default=0.0)
+    z = min(map(_top_zipf, content), default=0.0)
     if z <= 0 or _trusted(m, typed):  # most place names are in no list: checked first
         return False
     renown = ORDINARY_ZIPF_BASE + ORDINARY_ZIPF_SLOPE * math.log10(max(_renown(m.readings), 1.0))
     return z - (renown - RUNNING_TEXT_SHIFT) > -4 * ORDINARY_SCALE
 
 
-def weigh_words(query: Query, mentions: list[Mention]) -> list[Mention]:
+def weigh_words(
+    query: Query, mentions: list[Mention], typed: Sequence[list[str]] | None = None
+) -> list[Mention]:
     """Each mention with its ``prior`` of naming a place (``place_prior``).
 
     Two passes: first every other mention counts as words around a mention; then
     only the mentions that are likely places do ("Paris & Nice" names two places;
-    in "Toronto born and raised", "born" stands in running text).
+    in "Toronto born and raised", "born" stands in running text). ``typed`` are the
+    mentions' ``_typed_words``, in order.
     """
-    todo = [i for i, m in enumerate(mentions) if _may_be_ordinary(query, m)]
+    if typed is None:
+        typed = [_typed_words(query, m) for m in mentions]
+    todo = [
+        i
+        for i, (m, t) in enumerate(zip(mentions, typed, strict=True))
+        if _may_be_ordinary(query, m, t)
+    ]
     if not todo:
         return mentions  # every prior stays 1
     lang = text_language(_free_words(query, mentions))
@@ -689,12 +764,16 @@ _CODE_TOKEN = re.compile(
     r"|[\w-]+(?:\.[\w-]+)*\.(?:com|org|net|io|dev|app|py|js|ts|html?|txt|exe|sh|json|csv)"
     r"|\S*[{};$\\`]\S*|\S*\(\)\S*)$"
 )
+# A character each form of ``_CODE_TOKEN`` has.
+_CODE_SIGN = re.compile(r"[:./<{};$\\`(]")
 _HANDLE = re.compile(r"^[@#]\w+$")
 _LETTERS = re.compile(r"[^\W\d_]+")
 
 
 def code_text(query: Query) -> bool:
     """Whether every token of the text is a web or file address, markup or code."""
+    if not _CODE_SIGN.search(query.key):
+        return False  # every form of ``_CODE_TOKEN`` has one of these signs
     tokens = query.key.split()
     return bool(tokens) and all(_CODE_TOKEN.match(t) for t in tokens)
 
