@@ -1,12 +1,17 @@
 """The local engine: answers equal the resolver's, in one process or in several,
-and the garbage collector's setting is put back after a run."""
+and the garbage collector's setting is put back after a run; a chunk's two forms
+(answers, the cache's rows) hold the same answers."""
 
 from __future__ import annotations
 
 import gc
+import math
 
-from geonorm.batch.engines import GC_THRESHOLD, LocalEngine
-from geonorm.resolve.resolution import Resolution
+import pytest
+
+from geonorm.batch.cache import answer_of_row, stored_row
+from geonorm.batch.engines import GC_THRESHOLD, Chunk, LocalEngine
+from geonorm.resolve.resolution import Candidate, Reason, Resolution, Status
 
 TEXTS = ["Lyon", "austin tx", "Perth, Scotland", "東京", "Lisbon / Berlin", "Amsterdamn", "n/a"]
 
@@ -17,7 +22,7 @@ def test_one_process_gives_the_resolvers_answers_and_restores_the_collector(reso
     seen: list[int] = []
     got: dict[str, Resolution] = {}
 
-    def take(chunk: dict[str, Resolution]) -> None:
+    def take(chunk: Chunk) -> None:
         seen.append(gc.get_threshold()[0])
         got.update(chunk)
 
@@ -36,3 +41,45 @@ def test_two_processes_give_the_same_answers(resolver):
     assert {k: r.to_dict() for k, r in got.items()} == {
         k: resolver.resolve(k).to_dict() for k in keys
     }
+
+
+def test_two_processes_send_the_caches_rows(resolver):
+    keys = [resolver.key(t) for t in TEXTS]
+    chunks: list[Chunk] = []
+    LocalEngine(2, chunk=4).resolve(resolver, keys, chunks.append)
+    assert sorted(k for c in chunks for k in c) == sorted(keys)
+    for chunk in chunks:
+        assert chunk.rows == [stored_row(k, resolver.resolve(k)) for k in chunk]
+        assert {k: r.to_dict() for k, r in chunk.items()} == {
+            k: resolver.resolve(k).to_dict() for k in chunk
+        }
+
+
+def test_a_row_reads_back_as_the_answer_it_was_made_of():
+    res = Resolution(
+        Status.REVIEW,
+        Reason.AMBIGUOUS,
+        "US",
+        "US-GA",
+        "Athens",
+        33.96095,
+        -83.37794,
+        4180386,
+        0.1 + 0.2,  # a float whose shortest text has 17 digits
+        -0.0,
+        [Candidate("US", "US-GA", "Athens", 33.96095, -83.37794, 0.55), Candidate("GR")],
+        {"US": 0.55, "GR": 0.45},
+    )
+    back = answer_of_row(stored_row("athens", res))
+    assert back == res
+    assert math.copysign(1.0, back.score) == -1.0
+    chunk = Chunk(rows=[stored_row("athens", res)])
+    assert len(chunk) == 1 and list(chunk) == ["athens"] and chunk["athens"] == res
+    assert Chunk({"athens": res}).rows == chunk.rows
+
+
+def test_a_chunk_is_made_of_one_form():
+    with pytest.raises(ValueError, match="one of them"):
+        Chunk()
+    with pytest.raises(ValueError, match="one of them"):
+        Chunk({}, [])

@@ -30,7 +30,7 @@ from ..progress import Progress, no_progress, start
 from ..resolve.prior import rerank
 from ..resolve.resolution import Reason, Resolution, Status, settle
 from ..resolve.resolver import Resolver
-from .engines import Engine, LocalEngine
+from .engines import Chunk, Engine, LocalEngine
 from .options import RemoteOptions
 
 if TYPE_CHECKING:  # a lookup without a cache never imports it
@@ -97,10 +97,10 @@ def resolve_keys(
     if misses:
         advance = start(progress, "resolving", len(misses))
 
-        def take(chunk: dict[str, Resolution]) -> None:
-            if cache is not None:
-                cache.put_many(chunk, version)  # one transaction per chunk: a killed run keeps it
-            fresh.update(chunk)
+        def take(chunk: Chunk) -> None:
+            if cache is not None:  # one transaction per chunk: a killed run keeps it
+                cache.put_rows(chunk.rows, version)
+            fresh.update(chunk.answers)
             advance(len(chunk))
 
         (engine or LocalEngine()).resolve(resolver, misses, take)

@@ -353,8 +353,35 @@ def _use_wal(conn: sqlite3.Connection) -> None:
     conn.execute("PRAGMA synchronous=NORMAL")
 
 
-def _answer(row: Sequence[Any], full: bool) -> Resolution:
-    """A stored answer from its row; candidates and evidence only where they are needed."""
+# An answer as the cache stores it: key, status, reason, country, subdivision, city, lat,
+# lon, geonameid, confidence, score and ``detail`` (candidates and evidence as JSON).
+StoredRow = tuple[Any, ...]
+
+
+def stored_row(key: str, res: Resolution) -> StoredRow:
+    """``res`` as the cache stores it (``put_rows``); ``answer_of_row`` reads it back."""
+    return (
+        key,
+        res.status.value,
+        res.reason.value,
+        res.country,
+        res.subdivision,
+        res.city,
+        res.lat,
+        res.lon,
+        res.geonameid,
+        res.confidence,
+        res.score,
+        json.dumps(
+            {"candidates": [c.__dict__ for c in res.candidates], "evidence": res.evidence},
+            ensure_ascii=False,
+        ),
+    )
+
+
+def answer_of_row(row: Sequence[Any], full: bool = True) -> Resolution:
+    """A stored answer from its row; candidates and evidence only where they are needed
+    (all with ``full``)."""
     _key, status, reason, country, sub, city, lat, lon, gid, conf, score, detail = row
     res = Resolution(
         _STATUS[status], _REASON[reason], country, sub, city, lat, lon, gid, conf, score
@@ -510,7 +537,7 @@ class Cache:
             rows = list(self._in_batches(f"{columns} AND key IN ({{marks}})", keys, [version]))
         for row in rows:
             try:
-                out[row[0]] = _answer(row, full)
+                out[row[0]] = answer_of_row(row, full)
             except (KeyError, TypeError, ValueError) as exc:  # a row SQLite read, but damaged
                 raise CacheError(
                     f"an answer stored in the cache at {self.path} is damaged "
@@ -522,32 +549,14 @@ class Cache:
     @_guarded
     def put_many(self, items: Mapping[str, Resolution], version: str) -> None:
         """Store answers in one transaction."""
-        now = utc_stamp()
-        rows = [
-            (
-                k,
-                version,
-                r.status.value,
-                r.reason.value,
-                r.country,
-                r.subdivision,
-                r.city,
-                r.lat,
-                r.lon,
-                r.geonameid,
-                r.confidence,
-                r.score,
-                json.dumps(
-                    {"candidates": [c.__dict__ for c in r.candidates], "evidence": r.evidence},
-                    ensure_ascii=False,
-                ),
-                now,
-                now,
-            )
-            for k, r in items.items()
-        ]
+        self.put_rows([stored_row(k, r) for k, r in items.items()], version)
+
+    @_guarded
+    def put_rows(self, rows: Sequence[StoredRow], version: str) -> None:
+        """Store answers as rows (``stored_row``) in one transaction."""
         if not rows:
             return
+        now = utc_stamp()
         with _transaction(self.conn) as conn:
             conn.executemany(
                 f"INSERT INTO resolution ({_RESOLUTION_COLUMNS}) "
@@ -557,7 +566,7 @@ class Cache:
                 "city=excluded.city, lat=excluded.lat, lon=excluded.lon, "
                 "geonameid=excluded.geonameid, confidence=excluded.confidence, "
                 "score=excluded.score, detail=excluded.detail, updated=excluded.updated",
-                rows,
+                [(row[0], version, *row[1:], now, now) for row in rows],
             )
 
     # -- in bulk, as columns (the warm path of a whole file) ------------------

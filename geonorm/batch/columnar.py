@@ -34,12 +34,12 @@ from ..resolve.prior import eligible, file_prior, reconsider
 from ..resolve.resolution import Reason, Resolution, Status, status_at
 from ..resolve.resolver import Resolver
 from ..resolve.tuning import PRIOR_MIN_CONFIDENCE
-from .engines import Engine, LocalEngine
+from .engines import Chunk, Engine, LocalEngine
 from .formats import per_distinct
 from .schema import GEO_FIELDS, GeoRow
 
 if TYPE_CHECKING:
-    from .cache import Cache
+    from .cache import Cache, StoredRow
 
 __all__ = ["KEPT_TEXT", "AnswerTable", "answer_table", "with_keys"]
 
@@ -168,11 +168,12 @@ def answer_table(
     if misses:
         advance = start(progress, "resolving", len(misses))
 
-        def take(chunk: dict[str, Resolution]) -> None:
-            if cache is not None:
-                cache.put_many(chunk, version)  # one transaction per chunk: a killed run keeps it
-            parts.append(_rows_of(chunk))
-            if cache is None:  # else read back from the cache, if the file prior needs them
+        def take(chunk: Chunk) -> None:
+            if cache is not None:  # one transaction per chunk: a killed run keeps it
+                cache.put_rows(chunk.rows, version)
+                parts.append(_rows_of_stored(chunk.rows))
+            else:  # the file prior reads answers it may re-rank back from the cache, if any
+                parts.append(_rows_of(chunk))
                 fresh.update((k, r) for k, r in chunk.items() if r.reason in _PRIOR_REASONS)
             advance(len(chunk))
 
@@ -328,6 +329,16 @@ def _rows_of(answers: Mapping[str, Resolution], accept: float | None = None) -> 
         },
         schema=_ROW_SCHEMA,
     )
+
+
+def _rows_of_stored(stored: Sequence[StoredRow]) -> pl.DataFrame:
+    """``_rows_of`` for answers as the cache stores them (``cache.stored_row``); fresh
+    answers have no remote source, so their reason is written as it is."""
+    key, status, reason, country, sub, city, lat, lon, _gid, conf, _score, _detail = (
+        (list(c) for c in zip(*stored, strict=True)) if stored else ([] for _ in range(12))
+    )
+    columns = [key, status, reason, country, sub, city, lat, lon, conf, reason]
+    return pl.DataFrame(dict(zip(_ROW_SCHEMA, columns, strict=True)), schema=_ROW_SCHEMA)
 
 
 def _replace(

@@ -42,12 +42,11 @@ import pyarrow as pa
 from ..errors import InputError, PlaceIndexError
 from ..progress import Progress, no_progress, note
 from ..resolve.index import PlaceIndex, default_index_path
-from ..resolve.resolution import Resolution
 from ..resolve.resolver import DEFAULT_ACCEPT, Resolver
-from .cache import Cache
+from .cache import Cache, StoredRow, stored_row
 from .clean import CleanSummary
 from .columnar import AnswerTable, answer_table
-from .engines import CHUNK, Engine, LocalEngine, Take
+from .engines import CHUNK, Chunk, Engine, LocalEngine, Take
 from .options import CleanOptions
 from .schema import GEO_FIELDS, NUMERIC_FIELDS, geo_column_names
 
@@ -109,17 +108,17 @@ def _worker_info(index_path: str | None, accept: float) -> dict[str, str]:
 
 def _resolve_chunk(
     keys: Sequence[str], expected: dict[str, str], index_path: str | None, accept: float
-) -> list[tuple[str, Resolution]]:
+) -> list[StoredRow]:
     """One task: resolve a chunk of keys, after checking this worker answers like the client."""
     global _resolved
     resolver = _worker_resolver(index_path, accept)
     mine = _fingerprint(resolver)
     if mine != expected:
         raise _mismatch(_worker_name(), mine, expected)
-    pairs = [(k, resolver.resolve(k)) for k in keys]
+    rows = [stored_row(k, resolver.resolve(k)) for k in keys]
     with _lock:
-        _resolved += len(pairs)
-    return pairs
+        _resolved += len(rows)
+    return rows
 
 
 def resolved_here() -> int:
@@ -247,11 +246,11 @@ class DaskEngine:
             for _ in range(window):
                 submit_next()
             for future in running:
-                pairs = future.result()
+                rows = future.result()
                 pending.discard(future)
                 future.release()
                 submit_next()
-                take(dict(pairs))
+                take(Chunk(rows=rows))
         finally:
             self.client.cancel(list(pending))
 

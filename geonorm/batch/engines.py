@@ -4,13 +4,18 @@ An engine takes the resolver and the missing keys and hands back answers in
 chunks; the answer pipeline stores each chunk in the cache as it arrives, so
 an interrupted run keeps what it finished. ``LocalEngine`` uses this
 machine's cores.
+
+A chunk (``Chunk``) is a mapping of keys to answers. Where the answers were
+made in another process, it holds them as the rows the cache stores
+(``cache.stored_row``): those are what travel, and the cache and the answer
+table take them as they are; answer objects are decoded only when asked for.
 """
 
 from __future__ import annotations
 
 import gc
 import multiprocessing as mp
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Mapping, Sequence
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Protocol
@@ -18,12 +23,62 @@ from typing import Protocol
 from ..resolve.index import PlaceIndex
 from ..resolve.resolution import Resolution
 from ..resolve.resolver import Resolver
+from .cache import StoredRow, answer_of_row, stored_row
 
-__all__ = ["CHUNK", "GC_THRESHOLD", "Engine", "LocalEngine"]
+__all__ = ["CHUNK", "GC_THRESHOLD", "Chunk", "Engine", "LocalEngine"]
 
 CHUNK = 2000  # distinct strings per task and per cache commit
 
-Take = Callable[[dict[str, Resolution]], None]
+
+class Chunk(Mapping[str, Resolution]):
+    """The answers to a chunk of keys, as objects or as the cache's rows (``stored_row``),
+    whichever they were made as; the other form is made on first use.
+
+    Answers decoded from rows are those a later run reads back from the cache (with
+    their candidates and evidence), field for field.
+    """
+
+    __slots__ = ("_answers", "_rows")
+
+    def __init__(
+        self,
+        answers: Mapping[str, Resolution] | None = None,
+        rows: Sequence[StoredRow] | None = None,
+    ) -> None:
+        if (answers is None) == (rows is None):
+            raise ValueError("a chunk is made of answers or of rows, one of them")
+        self._answers = dict(answers) if answers is not None else None
+        self._rows = list(rows) if rows is not None else None
+
+    @property
+    def rows(self) -> list[StoredRow]:
+        """The answers as the cache stores them, in the chunk's order."""
+        if self._rows is None:
+            assert self._answers is not None
+            self._rows = [stored_row(k, r) for k, r in self._answers.items()]
+        return self._rows
+
+    @property
+    def answers(self) -> dict[str, Resolution]:
+        if self._answers is None:
+            assert self._rows is not None
+            self._answers = {row[0]: answer_of_row(row) for row in self._rows}
+        return self._answers
+
+    def __getitem__(self, key: str) -> Resolution:
+        return self.answers[key]
+
+    def __iter__(self) -> Iterator[str]:
+        if self._answers is None:
+            assert self._rows is not None
+            return (row[0] for row in self._rows)
+        return iter(self._answers)
+
+    def __len__(self) -> int:
+        return len(self._rows) if self._rows is not None else len(self.answers)
+
+
+Take = Callable[[Chunk], None]
 
 
 class Engine(Protocol):
@@ -48,7 +103,7 @@ class LocalEngine:
         if self.workers <= 1 or len(chunks) <= 1:
             with _rare_collections():
                 for chunk in chunks:
-                    take({k: resolver.resolve(k) for k in chunk})
+                    take(Chunk({k: resolver.resolve(k) for k in chunk}))
             return
         method = "fork" if "fork" in mp.get_all_start_methods() else "spawn"
         ctx = mp.get_context(method)
@@ -60,8 +115,8 @@ class LocalEngine:
             initializer=_worker_init,
             initargs=(shared, str(resolver.index.path), resolver.accept),
         ) as pool:
-            for pairs in pool.imap(_worker_resolve, chunks):
-                take(dict(pairs))
+            for rows in pool.imap(_worker_resolve, chunks):
+                take(Chunk(rows=rows))
 
 
 # Allocations between two collections of the cyclic garbage collector's youngest
@@ -101,6 +156,7 @@ def _worker_init(resolver: Resolver | None, index_path: str, accept: float) -> N
     _collect_rarely()  # a worker process does nothing but resolve
 
 
-def _worker_resolve(keys: Sequence[str]) -> list[tuple[str, Resolution]]:
+def _worker_resolve(keys: Sequence[str]) -> list[StoredRow]:
+    """Answers as the cache's rows: smaller to send than objects, and stored as they come."""
     assert _WORKER is not None
-    return [(k, _WORKER.resolve(k)) for k in keys]
+    return [stored_row(k, _WORKER.resolve(k)) for k in keys]
