@@ -110,7 +110,10 @@ def main() -> None:
     result: dict[str, object] = dict(_fresh(args.distinct, plain=False))
     plain = _fresh(args.distinct, plain=True)
     result["plain_loop_resolve_cpu_ms_per_distinct"] = plain["resolve_cpu_ms_per_distinct"]
-    exe = ["geonorm"]
+    sys.path.insert(0, str(Path(__file__).parent))
+    from bench_clean import geonorm_command
+
+    exe = geonorm_command()
     _time([*exe, "lookup", "Lyon"])  # make sure the index exists
     lookups = sorted(_time([*exe, "lookup", "Lyon"]) for _ in range(5))
     starts = sorted(_time([sys.executable, "-c", "pass"]) for _ in range(5))
