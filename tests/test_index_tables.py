@@ -7,6 +7,7 @@ the queries give, in the same order (the order weighs in the decision's sums).
 
 from __future__ import annotations
 
+import dataclasses
 import random
 import shutil
 import sqlite3
@@ -14,7 +15,8 @@ from pathlib import Path
 
 import pytest
 
-from geonorm.resolve.build.layout import ORIGINS, content_hash
+from geonorm.resolve import index as index_module
+from geonorm.resolve.build.layout import ORIGINS, content_hash, from_le
 from geonorm.resolve.index import QUERIED_LOOKUPS, NameHit, Place, PlaceIndex, load_index
 from geonorm.resolve.resolver import Resolver
 
@@ -122,3 +124,27 @@ def test_content_hash_changes_with_the_content(copied):
     assert content_hash(con) != before
     con.rollback()
     con.close()
+
+
+def test_packed_tables_are_read_whole(index, db):
+    for name in ("name_slots", "place_cc", "fuzzy:a"):
+        (want,) = db.execute("SELECT data FROM packed WHERE name = ?", (name,)).fetchone()
+        assert index._blob(name) == want
+    assert index._blob("no such table") == b""
+
+
+def test_packed_numbers_read_in_place_equal_their_copies(index):
+    for typecode, name in (("I", "name_slots"), ("d", "place_lat"), ("q", "place_pop")):
+        data = index._blob(name)
+        in_place, copied = index_module._numbers(typecode, data), from_le(typecode, data)
+        assert list(map(repr, in_place)) == list(map(repr, copied))  # NaN: no coordinates
+
+
+def test_hits_and_places_are_the_objects_their_constructors_make(index):
+    place = index.place(index.lookup("lyon")[0].place.id)
+    made = Place(*vars(place).values())
+    assert place == made and hash(place) == hash(made) and repr(place) == repr(made)
+    assert vars(place) == vars(made)
+    hit = index_module._name_hit(place, "alias")
+    assert hit == NameHit(place, "alias") and vars(hit) == vars(NameHit(place, "alias"))
+    assert [f.name for f in dataclasses.fields(NameHit)] == ["place", "origin"]

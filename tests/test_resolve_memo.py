@@ -1,7 +1,7 @@
 """Work kept across the strings of a run changes no answer.
 
-Parts, their segmentation, spelling matches and each stage's readings of a name
-are kept per process; answers must not depend on which strings came before.
+Parts, their segmentation and spelling matches are kept per process; answers must
+not depend on which strings came before.
 """
 
 from __future__ import annotations
@@ -31,9 +31,9 @@ def test_answers_do_not_depend_on_what_came_before():
     texts = _texts()
     first = Resolver(load_index())
     forward = {t: first.resolve(t).to_dict() for t in texts}
-    normalize_module._read_part.cache_clear()
     normalize_module.fold.cache_clear()
-    second = Resolver(load_index())
+    second = Resolver(load_index())  # its own noise phrases: parts read afresh
+    assert second.noise.read_part.cache_info().currsize == 0
     backward = {t: second.resolve(t).to_dict() for t in reversed(texts)}
     again = {t: first.resolve(t).to_dict() for t in texts}
     assert backward == forward
@@ -47,3 +47,21 @@ def test_a_mention_with_other_readings_keeps_every_other_field():
     assert m.with_readings(readings) == dataclasses.replace(m, readings=readings)
     names = {f.name for f in dataclasses.fields(Mention)}
     assert names == {"text", "part", "start", "readings", "source", "prior"}
+
+
+def test_a_part_is_read_once_per_chunk_and_noise_phrases():
+    resolver = Resolver(load_index())
+    first = resolver.noise.read_part("Based in Lyon")
+    assert resolver.noise.read_part("Based in Lyon") is first
+    assert first == normalize_module._read_part("Based in Lyon", resolver.noise)
+    assert first[0] is not None and first[0].key == "lyon"
+    other = normalize_module.NoisePhrases([], [], [])
+    assert other.read_part("Based in Lyon")[0].key == "based in lyon"
+
+
+def test_parts_equal_as_before_and_hash_by_their_folded_text():
+    a = Resolver(load_index()).normalize("ON, London ON").parts
+    b = normalize_module.normalize("ON, London ON").parts
+    assert a[0] != a[1] and hash(a[0]) == hash("on")
+    assert {a[0]: 1}.get(dataclasses.replace(a[0])) == 1
+    assert len({*a, *b}) == len(set(a) | set(b))

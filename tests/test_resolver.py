@@ -4,7 +4,9 @@ from __future__ import annotations
 
 import ast
 import csv
+import dataclasses
 import json
+import re
 from pathlib import Path
 
 from hypothesis import HealthCheck, given, settings
@@ -12,8 +14,8 @@ from hypothesis import strategies as st
 
 from geonorm import Reason, Status
 from geonorm.batch.answers import resolve_keys
-from geonorm.resolve import calibration
-from geonorm.resolve.stages import Stage
+from geonorm.resolve import calibration, stages
+from geonorm.resolve.stages import Reading, Stage
 from geonorm.review import refit
 
 
@@ -323,3 +325,52 @@ def test_answers_do_not_depend_on_the_hash_seed():
         )
         outs.append(json.loads(done.stdout))
     assert outs[0] == outs[1]
+
+
+def _fictional_by_every_run(resolver, query, longest: int = 4) -> list[str]:
+    """``fictional_names`` spelt out: every run of words looked up."""
+    runs = [p.full_key.split() for p in query.parts]
+    runs.append(re.sub(r"[^\w\s]", " ", query.folded).split())
+    found: list[str] = []
+    for words in runs:
+        for n in range(min(longest, len(words)), 0, -1):
+            for i in range(len(words) - n + 1):
+                key = " ".join(words[i : i + n])
+                if key in resolver.not_a_place.fictional and key not in found:
+                    found.append(key)
+    return found
+
+
+@settings(
+    max_examples=200, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture]
+)
+@given(
+    st.lists(
+        st.sampled_from(["Hogwarts", "Middle Earth", "Gotham", "City", "Narnia", "Paris", "of"])
+        | st.sampled_from([",", "/", "-", "the", "Shire", "Atlantis", "Springfield"]),
+        max_size=6,
+    ).map(" ".join)
+)
+def test_fictional_names_are_every_run_the_table_holds(resolver, text):
+    query = resolver.normalize(text)
+    assert resolver.not_a_place.fictional_names(query) == _fictional_by_every_run(resolver, query)
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(st.sampled_from([*"htpsw.@:/oi-_+ ", "www", "http", ".com", ".io", "x@y"])))
+def test_a_url_is_searched_for_only_where_one_may_be(pieces):
+    text = "".join(pieces)
+    if stages._URL.search(text):
+        assert stages._may_be_url(text)
+
+
+def test_readings_are_the_objects_their_constructor_makes(resolver):
+    place = resolver.index.countries["FR"]
+    made = stages._reading(place, "name", 2.5)
+    assert made == Reading(place, "name", 2.5) and vars(made) == vars(Reading(place, "name", 2.5))
+    assert [f.name for f in dataclasses.fields(Reading)] == [
+        "place",
+        "origin",
+        "weight",
+        "similarity",
+    ]

@@ -8,13 +8,15 @@ Nothing is downloaded: a missing index is built from the packages.
 from __future__ import annotations
 
 import sqlite3
+import sys
 import threading
 from array import array
 from bisect import bisect_left, bisect_right
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
+from typing import Any
 
 from ..errors import PlaceIndexError
 from ..paths import data_dir, gazetteer_dir
@@ -69,8 +71,24 @@ class NameHit:
     origin: str
 
 
+_new = object.__new__
+_set = object.__setattr__
+
+
+def _name_hit(place: Place, origin: str) -> NameHit:
+    """``NameHit(place, origin)``, made faster than by the frozen dataclass's ``__init__``
+    (lookups make many); the same object."""
+    hit = _new(NameHit)
+    _set(hit, "place", place)
+    _set(hit, "origin", origin)
+    return hit
+
+
 class PlaceIndex:
-    """Read-only access to a compiled index. Thread-safe; one connection per thread."""
+    """Read-only access to a compiled index. Thread-safe; one connection per thread.
+
+    Hashed by identity (``object.__hash__``, no ``__eq__``), for ``lru_cache`` on methods.
+    """
 
     def __init__(self, path: Path) -> None:
         self.path = Path(path)
@@ -111,6 +129,9 @@ class PlaceIndex:
         self._names: _NameTable | None = None
         self._lookups = 0
         self._columns: _PlaceColumns | None = None
+        # The names looked up lately, by name (a string key: hashed once, kept untracked
+        # by the garbage collector).
+        self._hits = lru_cache(maxsize=100_000)(self._find)
 
     def _db(self) -> sqlite3.Connection:
         db = getattr(self._local, "db", None)
@@ -133,8 +154,14 @@ class PlaceIndex:
 
     def _blob(self, name: str) -> bytes:
         """One of the packed tables (``build.layout``), or b'' when there is none."""
-        row = self._db().execute("SELECT data FROM packed WHERE name = ?", (name,)).fetchone()
-        return row[0] if row else b""
+        db = self._db()
+        row = db.execute("SELECT rowid FROM packed WHERE name = ?", (name,)).fetchone()
+        if row is None:
+            return b""
+        if hasattr(db, "blobopen"):  # Python 3.11+: read straight into one byte string
+            with db.blobopen("packed", "data", row[0], readonly=True) as blob:
+                return blob.read()
+        return db.execute("SELECT data FROM packed WHERE rowid = ?", row).fetchone()[0]
 
     def _name_table(self) -> _NameTable:
         names = self._names
@@ -158,7 +185,6 @@ class PlaceIndex:
             self._places[pid] = p
         return p
 
-    @lru_cache(maxsize=100_000)  # noqa: B019 - the index lives as long as the process
     def lookup(self, key: str) -> tuple[NameHit, ...]:
         """All places whose folded name equals ``key``, with the name's origin (in the
         order of the name table: by place id).
@@ -167,10 +193,18 @@ class PlaceIndex:
         that looks up a few names never loads the packed tables; later ones are read
         from them in memory. Both give the same answer.
         """
+        return self._hits(key)
+
+    def _find(self, key: str) -> tuple[NameHit, ...]:
+        """``lookup``'s work, for a name not looked up lately."""
         self._lookups += 1
         if self._lookups <= QUERIED_LOOKUPS:
             return self._query(key)
-        return tuple(NameHit(self.place(pid), origin) for pid, origin in self._name_table()[key])
+        found = self._name_table()[key]
+        if not found:
+            return ()
+        place = self.place
+        return tuple([_name_hit(place(pid), origin) for pid, origin in found])
 
     def _query(self, key: str) -> tuple[NameHit, ...]:
         rows = (
@@ -200,9 +234,6 @@ class PlaceIndex:
         end = bisect_right(lengths, length + spread)
         return keys[start:end], TypoTargets(codes[start:end])
 
-    def __hash__(self) -> int:  # for lru_cache on methods
-        return id(self)
-
 
 class TypoTargets:
     """The (place id, origin) of each name of a typo block, decoded when asked for."""
@@ -225,7 +256,7 @@ class _NameTable:
     an open-addressing hash table over two byte strings, looked up without a query."""
 
     def __init__(self, slots: bytes, records: bytes) -> None:
-        self.slots = from_le("I", slots)
+        self.slots = _numbers("I", slots)
         self.mask = len(self.slots) - 1
         self.records = records
 
@@ -252,11 +283,11 @@ class _PlaceColumns:
         self.cc = StringColumn(blob("place_cc"))
         self.sub = StringColumn(blob("place_sub"))
         self.name = StringColumn(blob("place_name"))
-        self.lat = from_le("d", blob("place_lat"))
-        self.lon = from_le("d", blob("place_lon"))
-        self.pop = from_le("q", blob("place_pop"))
-        self.gid = from_le("q", blob("place_gid"))
-        self.fame = from_le("q", blob("place_fame"))
+        self.lat = _numbers("d", blob("place_lat"))
+        self.lon = _numbers("d", blob("place_lon"))
+        self.pop = _numbers("q", blob("place_pop"))
+        self.gid = _numbers("q", blob("place_gid"))
+        self.fame = _numbers("q", blob("place_fame"))
 
     def place(self, pid: int) -> Place:
         i = pid - 1
@@ -265,23 +296,28 @@ class _PlaceColumns:
                 f"the place index has no place {pid}", hint="rebuild it: geonorm gazetteer build"
             )
         lat, lon, gid = self.lat[i], self.lon[i], self.gid[i]
-        return Place(
-            pid,
-            KINDS[self.kind[i]],
-            _text(self.cc, i),
-            _text(self.sub, i),
-            _text(self.name, i),
-            None if lat != lat else lat,  # NaN: no coordinates
-            None if lon != lon else lon,
-            self.pop[i],
-            None if gid == NO_GID else gid,
-            self.fame[i],
-        )
+        cc, sub, name = self.cc, self.sub, self.name  # a string: its bytes between two ends
+        # Place(...), made faster than by its __init__ (see ``_name_hit``).
+        place = _new(Place)
+        _set(place, "id", pid)
+        _set(place, "kind", KINDS[self.kind[i]])
+        _set(place, "cc", cc.text[cc.ends[i - 1] if i else 0 : cc.ends[i]].decode())
+        _set(place, "sub", sub.text[sub.ends[i - 1] if i else 0 : sub.ends[i]].decode())
+        _set(place, "name", name.text[name.ends[i - 1] if i else 0 : name.ends[i]].decode())
+        _set(place, "lat", None if lat != lat else lat)  # NaN: no coordinates
+        _set(place, "lon", None if lon != lon else lon)
+        _set(place, "pop", self.pop[i])
+        _set(place, "gid", None if gid == NO_GID else gid)
+        _set(place, "fame", self.fame[i])
+        return place
 
 
-def _text(column: StringColumn, i: int) -> str:
-    ends = column.ends
-    return column.text[ends[i - 1] if i else 0 : ends[i]].decode("utf-8")
+def _numbers(typecode: str, data: bytes) -> Sequence[Any]:
+    """A packed column of numbers (little-endian): read in place where this machine is
+    little-endian too, else copied and swapped (``from_le``)."""
+    if sys.byteorder == "little":
+        return memoryview(data).cast(typecode)  # type: ignore[call-overload]  # a str code
+    return from_le(typecode, data)
 
 
 # Names looked up with a query before the packed name table is loaded (which takes

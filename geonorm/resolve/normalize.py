@@ -87,11 +87,14 @@ _HARD_SEP = re.compile(
     r"\s*(?:[,/|;•()\[\]{}<>\n\t،؛۔、。・।॥፣።፤։]|(?<![\u0900-\u0dff]):(?!\s)"
     r"|·(?![\U00010450-\U0001047f])|\s[-–—]+\s|[–—]+|\s\+\s|\s>\s|(?<=\w)\s+via\b)\s*"
 )
+# Text without any of these has no hard separator: it is one part, unsplit.
+_MAY_SEPARATE = re.compile(r"[,/|;•()\[\]{}<>\n\t،؛۔、。・।॥፣።፤։:·\-–—+]|via")
 _NUMERIC_POSTCODE = re.compile(r"^\d{3,6}(?:-\d{3,4})?$")
 _WS = re.compile(r"\s+")
 _ACRONYM = re.compile(r"(?<![\w.])(?:\w\.){2,}(?![\w])|(?<![\w.])(?:\w\.\w)(?![\w.])")
 _TOKEN = re.compile(r"[\w'.]+(?:-[\w'.]+)*", re.UNICODE)
 _NUMBER_LIKE = re.compile(r"[\d\-/]+[a-z]?")  # house and flat numbers: "12", "4b", "3/5"
+_DIGIT = re.compile(r"\d")
 
 
 def _fold_char(ch: str) -> str:
@@ -107,6 +110,21 @@ def _fold_char(ch: str) -> str:
     return ch
 
 
+class _CharFolds(dict[int, str]):
+    """``_fold_char`` by code point for ``str.translate``, filled as characters are met
+    (at most ``_CHAR_FOLDS_MAX`` of them are kept)."""
+
+    def __missing__(self, code: int) -> str:
+        folded = _fold_char(chr(code))
+        if len(self) < _CHAR_FOLDS_MAX:
+            self[code] = folded
+        return folded
+
+
+_CHAR_FOLDS_MAX = 50_000  # distinct characters remembered (texts hold a few thousand)
+_CHAR_FOLDS = _CharFolds()
+
+
 @lru_cache(maxsize=200_000)
 def fold(text: str) -> str:
     """Casefold, fold Latin accents, drop dots and collapse spaces.
@@ -114,15 +132,19 @@ def fold(text: str) -> str:
     Non-Latin scripts are kept as they are (only casefolded); folding Cyrillic
     or Devanagari marks would merge distinct names.
     """
-    text = unicodedata.normalize("NFKC", text).casefold()
-    # Zero-width (non-)joiners join; a zero-width space only marks a word boundary in
-    # scripts written without spaces (Khmer, Thai), inside names too ("កោះ\u200bខូក"),
-    # and the Mongolian vowel separator is part of its word.
-    text = text.replace("\u200c", "").replace("\u200d", "")
-    text = text.replace("\u200b", "").replace("\u180e", "")
-    text = "".join(_fold_char(c) for c in text)
-    # Dotted acronyms (L.A., U.K., N.L.) keep their dots: "l.a." is not "la".
-    text = _ACRONYM.sub(lambda m: m.group(0).replace(".", "\x00"), text)
+    if text.isascii():  # NFKC and letter folding change no ASCII character
+        text = text.lower()
+    else:
+        text = unicodedata.normalize("NFKC", text).casefold()
+        # Zero-width (non-)joiners join; a zero-width space only marks a word boundary in
+        # scripts written without spaces (Khmer, Thai), inside names too ("កោះ\u200bខូក"),
+        # and the Mongolian vowel separator is part of its word.
+        text = text.replace("\u200c", "").replace("\u200d", "")
+        text = text.replace("\u200b", "").replace("\u180e", "")
+        text = text.translate(_CHAR_FOLDS)
+    if "." in text:
+        # Dotted acronyms (L.A., U.K., N.L.) keep their dots: "l.a." is not "la".
+        text = _ACRONYM.sub(lambda m: m.group(0).replace(".", "\x00"), text)
     text = text.replace(".", " ").replace("\x00", ".").replace("'", "")
     text = text.replace("_", " ").replace("-", " ")
     return _WS.sub(" ", text).strip(" -")
@@ -250,6 +272,10 @@ class Part:
     def key(self) -> str:
         return " ".join(t.key for t in self.tokens)
 
+    def __hash__(self) -> int:
+        # Equal parts have equal folded texts; that string's hash is computed once.
+        return hash(self.full_key)
+
 
 @dataclass(frozen=True)
 class Query:
@@ -277,14 +303,39 @@ class NoisePhrases:
         self._prefix = re.compile(rf"^(?:(?:{alternation(prefix)})\s+)+(?=\S)")
         self._suffix = re.compile(rf"(?<=\S)(?:\s+(?:{alternation(suffix)}))+$")
         self._anywhere = re.compile(rf"(?:^|\s)(?:{alternation(anywhere)})(?=\s|$)")
+        # A phrase matches only where its first (or, at the end, its last) word is a
+        # word of the text: text without such a word is left as it is, unread.
+        self._heads = _words_at(prefix, 0)
+        self._tails = _words_at(suffix, -1)
+        self._anywhere_heads = _words_at(anywhere, 0)
+        # Distinct texts share most of their parts ("Paris" in "Paris, France" and
+        # "Paris, TX"): a part is read once per process (``_read_part``, a pure function
+        # of the chunk and these phrases), kept by its chunk.
+        self.read_part = lru_cache(maxsize=20_000)(self._read_part)
+
+    def _read_part(self, chunk: str) -> tuple[Part | None, tuple[str, ...]]:
+        return _read_part(chunk, self)
+
+    def _may_match(self, words: list[str]) -> bool:
+        """Whether any phrase may match a text of these words (False only when none can)."""
+        return bool(words) and (
+            words[0] in self._heads
+            or words[-1] in self._tails
+            or not self._anywhere_heads.isdisjoint(words)
+        )
 
     def strip_prefix(self, key: str) -> str:
         """Only the leading noise ("the Bay Area" → "Bay Area", whose last word is also noise)."""
+        words = key.split(None, 1)
+        if not words or words[0] not in self._heads:
+            return key.strip()
         return self._prefix.sub("", key).strip()
 
     def strip(self, key: str) -> str:
         """Remove noise around a part; a part that is nothing but noise stays as it is
         ("AU" is Australia's code, not the French article)."""
+        if not self._may_match(key.split()):
+            return key.strip()
         previous = None
         while previous != key:
             previous = key
@@ -292,6 +343,11 @@ class NoisePhrases:
             key = self._prefix.sub("", key).strip()
             key = self._suffix.sub("", key).strip()
         return key
+
+
+def _words_at(phrases: list[str], at: int) -> frozenset[str]:
+    """The first (``at`` 0) or last (``at`` −1) words of the folded phrases."""
+    return frozenset(fold(p).split()[at] for p in phrases if fold(p))
 
 
 _EMPTY_NOISE = NoisePhrases([], [], [])
@@ -302,15 +358,33 @@ def _clean_text(raw: str) -> tuple[str, list[str]]:
     if raw.isascii():  # the common case: no flag, and a table says which symbols go
         return raw.translate(_ASCII_DROPPED), []
     raw = raw.replace("\u200b", "").replace("\u180e", "").translate(_WORD_SPACES)  # see fold
-    text, flags = extract_flags(raw)
-    text = "".join(" " if _is_dropped_symbol(c) else c for c in text)
-    for ch in '#@"!?*~':
-        text = text.replace(ch, " ")
-    return text, flags
+    text, flags = extract_flags(raw) if _FLAG_START.search(raw) else (raw, [])
+    return text.translate(_DROPPED), flags
 
 
+def _dropped(ch: str) -> bool:
+    """Whether ``_clean_text`` turns the character into a space."""
+    return _is_dropped_symbol(ch) or ch in '#@"!?*~'
+
+
+class _DroppedSymbols(dict[int, str]):
+    """``_clean_text``'s reading of each character by code point, for ``str.translate``:
+    a space for what goes, else the character; filled as characters are met (at most
+    ``_CHAR_FOLDS_MAX`` of them are kept)."""
+
+    def __missing__(self, code: int) -> str:
+        ch = chr(code)
+        out = " " if _dropped(ch) else ch
+        if len(self) < _CHAR_FOLDS_MAX:
+            self[code] = out
+        return out
+
+
+_DROPPED = _DroppedSymbols()
 # What ``_clean_text`` turns into spaces, for ASCII text in one pass.
-_ASCII_DROPPED = {i: " " for i in range(128) if _is_dropped_symbol(chr(i)) or chr(i) in '#@"!?*~'}
+_ASCII_DROPPED = {i: " " for i in range(128) if _dropped(chr(i))}
+# Where a flag may start (``extract_flags``): a regional indicator or the black flag.
+_FLAG_START = re.compile("[\U0001f1e6-\U0001f1ff\U0001f3f4]")
 _ASCII_LETTER = re.compile("[A-Za-z]")  # str.isalpha on ASCII characters
 _SHORT_CAPS = re.compile(r"(\b[A-Z]{2,3}\b)")  # a capture group: split keeps the words
 # A window of a long cell ends before an ASCII character that is not part of a word (a
@@ -323,6 +397,8 @@ _PASSES = 4  # folding a key again settles within one or two passes (measured on
 def _fold_window(raw: str) -> str:
     """NFKC, zero-width joiners out, casefolded except two- and three-letter capitals."""
     if raw.isascii():  # the common case: NFKC changes nothing, casefold is lower
+        if raw.islower():
+            return raw  # no capital letter: nothing to fold
         words = _SHORT_CAPS.split(raw)
         return "".join(w if i % 2 else w.lower() for i, w in enumerate(words))
     text = unicodedata.normalize("NFKC", repair_mojibake(raw))
@@ -357,12 +433,19 @@ def _settled_key(raw: str) -> str:
     for _ in range(_PASSES):
         again = _key_pass(key)
         if again == key:
+            if len(_SETTLED) >= _SETTLED_MAX:
+                _SETTLED.clear()
+            _SETTLED.add(key)
             break
         key = again
     return key
 
 
 _cached_key = lru_cache(maxsize=500_000)(_settled_key)
+# Keys seen to be their own key (a pass over them changed nothing). The resolver reads
+# a text by its key, which is normalised again: such a key is not folded twice more.
+_SETTLED: set[str] = set()
+_SETTLED_MAX = 100_000
 
 
 def normalize_key(raw: str) -> str:
@@ -379,17 +462,21 @@ def normalize_key(raw: str) -> str:
     """
     if len(raw) > _WINDOW:  # a very long cell: computed from its head, not memoised
         return _settled_key(raw)
+    if raw in _SETTLED:
+        return raw
     return _cached_key(raw)
 
 
 def _is_street(words: list[str]) -> bool:
     """A street line of an address: a street word anywhere, or a suffix-only one after a name."""
-    return any(w in STREET_WORDS for w in words) or any(w in STREET_SUFFIX_ONLY for w in words[1:])
+    return not STREET_WORDS.isdisjoint(words) or not STREET_SUFFIX_ONLY.isdisjoint(words[1:])
 
 
 def _take_postcodes(text: str, postcodes: list[str]) -> str:
     """Postcodes whose shape names the country ("EH8 9YL" → "GB:eh8") into ``postcodes``;
     returns the text with them blanked."""
+    if not _DIGIT.search(text):
+        return text  # every format holds a digit
     for country, pattern in POSTCODE_FORMATS.items():
         for m in pattern.finditer(text):
             if any(c.isdigit() for c in m.group(0)) and any(c.isalpha() for c in m.group(0)):
@@ -411,27 +498,18 @@ def _tokens(text: str, chunk: str, postcodes: list[str]) -> list[Token]:
         word = word.strip("'-+<>|")
         if not word:
             continue
-        if _NUMERIC_POSTCODE.match(word):
+        if word[0].isalpha():  # a letter is neither a digit nor a number's start
+            tokens.append(Token(word, orig_by_key.get(word, word)))
+        elif _NUMERIC_POSTCODE.match(word):
             postcodes.append(word)
         elif not (word.isdigit() or _NUMBER_LIKE.fullmatch(word)):
             tokens.append(Token(word, orig_by_key.get(word, word)))
     return tokens
 
 
-def _part(chunk: str, noise: NoisePhrases, postcodes: list[str]) -> Part | None:
-    """One part between hard separators, noise removed; None when no word is left.
-    Its postcodes are added to ``postcodes``."""
-    part, found = _read_part(chunk, noise)
-    postcodes.extend(found)
-    return part
-
-
-# Distinct texts share most of their parts ("Paris" in "Paris, France" and "Paris,
-# TX"): a part is read once per process. Safe: a pure function of the chunk and the
-# noise phrases.
-@lru_cache(maxsize=20_000)
 def _read_part(chunk: str, noise: NoisePhrases) -> tuple[Part | None, tuple[str, ...]]:
-    """``_part``'s work: the part (or None) and the postcodes found in it, in order."""
+    """One part between hard separators, noise removed (None when no word is left),
+    and the postcodes found in it, in order."""
     postcodes: list[str] = []
     folded = fold(chunk)
     stripped = noise.strip(folded)
@@ -456,9 +534,10 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
     noise = noise or _EMPTY_NOISE
     parts: list[Part] = []
     postcodes: list[str] = []
-    for chunk in _HARD_SEP.split(text):
+    for chunk in _HARD_SEP.split(text) if _MAY_SEPARATE.search(text) else (text,):
         if chunk and chunk.strip():
-            part = _part(chunk, noise, postcodes)
+            part, found = noise.read_part(chunk)
+            postcodes.extend(found)
             if part is not None:
                 parts.append(part)
     if key.isascii():
@@ -474,6 +553,6 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
         tuple(postcodes),
         has_letters,
         tuple(coordinates),
-        tuple(z.name for z in zones if not z.offset),
-        tuple(offsets) + tuple(z.name for z in zones if z.offset),
+        tuple(z.name for z in zones if not z.offset) if zones else (),
+        tuple(offsets) + tuple(z.name for z in zones if z.offset) if zones else tuple(offsets),
     )

@@ -57,6 +57,13 @@ _IPV4 = re.compile(r"^\d{1,3}(?:[ .]\d{1,3}){3}$")
 # Bounded repeats: a megabyte-long cell must not make the search quadratic.
 _URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|[\w.+-]{1,64}@[\w-]{1,64}\.\w")
 _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
+_NOT_WORD = re.compile(r"[^\w\s]")
+_SPACES = re.compile(r"\s+")
+
+
+def _may_be_url(text: str) -> bool:
+    """False when ``_URL`` cannot match: each of its forms holds one of these."""
+    return "." in text or "@" in text or "www" in text or "http" in text
 
 
 @dataclass(frozen=True)
@@ -67,6 +74,21 @@ class Reading:
     origin: str  # name origin (name, alias, code2, postal, alt …) or flag / postcode
     weight: float  # see ``place_weight``; flags and postcodes weigh 1
     similarity: float = 1.0  # 1.0 exact; typo matches carry 1 − edits / length
+
+
+_new = object.__new__
+_set = object.__setattr__
+
+
+def _reading(place: Place, origin: str, weight: float) -> Reading:
+    """``Reading(place, origin, weight)``, made faster than by the frozen dataclass's
+    ``__init__`` (the stages make many); the same object."""
+    reading = _new(Reading)
+    _set(reading, "place", place)
+    _set(reading, "origin", origin)
+    _set(reading, "weight", weight)
+    _set(reading, "similarity", 1.0)
+    return reading
 
 
 @dataclass
@@ -238,16 +260,23 @@ class NotAPlaceFilter:
     def __init__(self, index: PlaceIndex) -> None:
         self.table = index.nonplace
         self.fictional = frozenset(k for k, kind in self.table.items() if kind == "fictional")
+        # A run of words is looked up only from a word that starts a fictional name.
+        self._fictional_heads = frozenset(k.split(" ")[0] for k in self.fictional)
 
     def fictional_names(self, query: Query, longest: int = 4) -> list[str]:
         """Fictional names anywhere in the text ("Hogwarts, Scotland"): runs of up to
         ``longest`` words, within a part or across the whole text."""
         runs = [p.full_key.split() for p in query.parts]
-        runs.append(re.sub(r"[^\w\s]", " ", query.folded).split())
-        found = []
+        runs.append(_NOT_WORD.sub(" ", query.folded).split())
+        heads = self._fictional_heads
+        found: list[str] = []
         for words in runs:
+            if heads.isdisjoint(words):
+                continue
             for n in range(min(longest, len(words)), 0, -1):
                 for i in range(len(words) - n + 1):
+                    if words[i] not in heads:
+                        continue
                     key = " ".join(words[i : i + n])
                     if key in self.fictional and key not in found:
                         found.append(key)
@@ -265,12 +294,10 @@ class NotAPlaceFilter:
             return ""  # a flag is a place, whatever words surround it
         if query.offsets and not query.parts and not query.postcodes:
             return "junk"  # a bare UTC offset ("UTC+2") names no place
-        keys = {
-            query.folded,
-            re.sub(r"[^\w\s]", " ", query.folded).strip(),
-            " ".join(p.key for p in query.parts),
-        }
-        keys |= {re.sub(r"\s+", " ", k).strip() for k in keys}
+        folded, joined = query.folded, " ".join(p.key for p in query.parts)
+        keys = {folded, _NOT_WORD.sub(" ", folded).strip(), joined}
+        # The folded text and its parts' words are single-spaced already.
+        keys |= {k if k is folded or k is joined else _SPACES.sub(" ", k).strip() for k in keys}
         for k in keys - {""}:
             kind = self.table.get(k)
             if kind:
@@ -281,7 +308,7 @@ class NotAPlaceFilter:
 def _looks_like_junk(query: Query) -> bool:
     """An IP address, a URL or e-mail address, a keyboard run or one letter repeated."""
     bare = query.folded.replace(" ", "")
-    if _IPV4.match(query.folded) or _URL.search(query.key):
+    if _IPV4.match(query.folded) or (_may_be_url(query.key) and _URL.search(query.key)):
         return True
     if (
         len(bare) >= 5
@@ -346,9 +373,6 @@ class PostcodeStage:
         return out
 
 
-_KIND_MEMO = 10_000  # hits tuples whose readings a stage keeps (then it starts again)
-
-
 class _SpanStage:
     """Shared logic of the exact-name stages: keep the readings of one place kind."""
 
@@ -357,41 +381,24 @@ class _SpanStage:
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
-        # Per hits tuple (the index returns the same tuple for the same name): the hits
-        # of this stage's kinds with their readings. The tuple is kept with its entry,
-        # so an entry is never taken for another tuple that reuses its id.
-        self._of_kind: dict[int, tuple[tuple[NameHit, ...], list[tuple[NameHit, Reading]]]] = {}
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         return True
 
-    def candidates(self, hits: tuple[NameHit, ...]) -> list[tuple[NameHit, Reading]]:
-        """The hits of this stage's kinds, in order, each with its reading."""
-        entry = self._of_kind.get(id(hits))
-        if entry is not None and entry[0] is hits:
-            return entry[1]
-        found = [
-            (h, Reading(h.place, h.origin, place_weight(h.place, h.origin)))
-            for h in hits
-            if h.place.kind in self.kinds
-        ]
-        if len(self._of_kind) >= _KIND_MEMO:
-            self._of_kind.clear()
-        self._of_kind[id(hits)] = (hits, found)
-        return found
-
     def resolve(self, query: Query, spans: Sequence[Span]) -> list[Mention]:
         out = []
+        allowed, kinds = self.allowed, self.kinds
         for span in spans:
             best: dict[int, Reading] = {}  # one reading per place: its strongest allowed name
-            for h, r in self.candidates(span.hits):
-                if self.allowed(query, span, h) and (
-                    h.place.id not in best or r.weight > best[h.place.id].weight
-                ):
-                    best[h.place.id] = r
-            readings = list(best.values())
-            if readings:
-                out.append(Mention(span.key, span.part, span.start, readings))
+            for h in span.hits:
+                place = h.place
+                if place.kind in kinds and allowed(query, span, h):
+                    weight = place_weight(place, h.origin)
+                    kept = best.get(place.id)
+                    if kept is None or weight > kept.weight:
+                        best[place.id] = _reading(place, h.origin, weight)
+            if best:
+                out.append(Mention(span.key, span.part, span.start, list(best.values())))
         return out
 
 
