@@ -147,12 +147,3 @@ def settle(res: Resolution, accept: float) -> Resolution:
     """Set the status of an answer to ``status_at(res, accept)`` (in place)."""
     res.status = status_at(res, accept)
     return res
-    if res.reason in _ALWAYS_REVIEW:
-        res.status = Status.REVIEW
-    elif res.reason is Reason.REVIEWED:
-        res.status = Status.MATCHED
-    elif res.country:
-        res.status = Status.MATCHED if res.confidence >= accept else Status.REVIEW
-    else:
-        res.status = Status.UNMATCHED
-    return res
