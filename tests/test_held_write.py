@@ -30,17 +30,10 @@ _ROWS = [
 ]
 
 
-def _cell(text: str | None, sep: str) -> str:
-    if text is None:
-        return ""
-    if text == "" or any(c in text for c in (sep, '"', "\n", "\r")):
-        return '"' + text.replace('"', '""') + '"'
-    return text
-
-
 def _write_input(path, sep: str, rows=_ROWS) -> None:
-    lines = [sep.join(["id", _cell('note, "x"', sep), "loc"])]
-    lines += [sep.join([i, _cell(f"n{i}", sep), _cell(t, sep)]) for i, t in rows]
+    cell = formats._csv_cell
+    lines = [sep.join(["id", cell('note, "x"', sep), "loc"])]
+    lines += [sep.join([i, cell(f"n{i}", sep), cell(t, sep)]) for i, t in rows]
     path.write_bytes(("\n".join(lines) + "\n").encode("utf-8"))
 
 
