@@ -10,16 +10,17 @@ import sys
 import time
 from collections.abc import Callable
 from pathlib import Path
-from typing import Annotated, Any, TypeVar
+from typing import TYPE_CHECKING, Annotated, Any, TypeVar, cast
 
 import typer
-from rich.console import Console
-from rich.markup import escape
-from rich.table import Table
 
 from .errors import GeonormError
 from .progress import ProgressEvent
 from .resolve.resolver import DEFAULT_ACCEPT
+
+if TYPE_CHECKING:
+    from rich.console import Console
+    from rich.table import Table
 
 app = typer.Typer(
     help="Resolve free-text location fields to ISO 3166 places, offline.",
@@ -30,8 +31,33 @@ app = typer.Typer(
 gazetteer_app = typer.Typer(help="Build or inspect the compiled place index.", no_args_is_help=True)
 app.add_typer(gazetteer_app, name="gazetteer")
 
-err = Console(stderr=True, highlight=False)
-out = Console(highlight=False)
+
+class _LazyConsole:
+    """A rich ``Console`` made at its first use: a command that prints nothing (``clean
+    --quiet``) never imports rich."""
+
+    def __init__(self, **options: Any) -> None:
+        self._options = options
+        self._console: Any = None
+
+    def __getattr__(self, name: str) -> Any:
+        if self._console is None:
+            from rich.console import Console
+
+            self._console = Console(**self._options)
+        return getattr(self._console, name)
+
+
+err = cast("Console", _LazyConsole(stderr=True, highlight=False))
+out = cast("Console", _LazyConsole(highlight=False))
+
+
+def _table(*args: Any, **options: Any) -> Table:
+    """A rich ``Table`` (rich imported when a command prints one)."""
+    from rich.table import Table
+
+    return Table(*args, **options)
+
 
 AcceptOpt = Annotated[
     float,
@@ -147,6 +173,8 @@ def visible(text: object) -> str:
 
 def shown(text: object) -> str:
     """User text for rich output: visible escapes, and rich markup escaped (``[/x]`` stays)."""
+    from rich.markup import escape
+
     return escape(visible(text))
 
 
@@ -223,7 +251,7 @@ def lookup(
 
         _print_json([answer_json(t, r) for t, r in results])
         return
-    table = Table(show_lines=False)
+    table = _table(show_lines=False)
     for col in ("text", "status", "place", "confidence", "reason", "candidates"):
         table.add_column(col, overflow="fold")
     for t, r in results:
@@ -460,7 +488,7 @@ def demo(
     finally:
         show.close()
     _print_summary(result["summary"])
-    table = Table(title="Top countries (matched rows)")
+    table = _table(title="Top countries (matched rows)")
     table.add_column("country")
     table.add_column("rows", justify="right")
     for cc, n in result["top_countries"]:
@@ -561,7 +589,7 @@ def review_list(
     if as_json:
         _print_json(decisions)
         return
-    table = Table()
+    table = _table()
     for col in ("text", "decision", "note", "decided_at"):
         table.add_column(col, overflow="fold")
     for d in decisions:
@@ -642,7 +670,7 @@ def score(
             "with a true subdivision",
             markup=False,
         )
-    t = Table(title="Precision and coverage by threshold")
+    t = _table(title="Precision and coverage by threshold")
     for col in ("threshold", "called", "precision", "coverage"):
         t.add_column(col, justify="right")
     for row in rep.by_threshold:
@@ -653,7 +681,7 @@ def score(
             f"{row['coverage']:.3f}",
         )
     out.print(t)
-    t = Table(title=f"Reliability (expected calibration error {rep.ece:.3f})")
+    t = _table(title=f"Reliability (expected calibration error {rep.ece:.3f})")
     for col in ("confidence", "answers", "mean confidence", "share right"):
         t.add_column(col, justify="right")
     for row in rep.reliability:
@@ -663,7 +691,7 @@ def score(
             )
     out.print(t)
     if rep.confusions:
-        t = Table(title="Most frequent confusions (matched rows)")
+        t = _table(title="Most frequent confusions (matched rows)")
         for col in ("truth", "given", "rows"):
             t.add_column(col)
         for c in rep.confusions:
@@ -792,7 +820,7 @@ def gazetteer_info(
     if as_json:
         _print_json(meta)
         return
-    table = Table(show_header=False)
+    table = _table(show_header=False)
     for k, v in meta.items():
         table.add_row(shown(k), shown(v))
     out.print(table)
@@ -883,7 +911,7 @@ def token_list(data_dir: DataDirOpt) -> None:
     """List the tokens' names and roles (never the tokens)."""
     from .service.server import list_tokens
 
-    table = Table()
+    table = _table()
     for col in ("name", "role", "created"):
         table.add_column(col)
     for t in list_tokens(data_dir):

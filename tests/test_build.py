@@ -19,18 +19,16 @@ from babel import Locale
 from geonorm.errors import PlaceIndexError
 from geonorm.paths import gazetteer_dir
 from geonorm.resolve import tables
-from geonorm.resolve.build import (
-    STEPS,
-    IndexBuilder,
-    add_cldr,
-    add_curated,
-    add_geonames,
-    add_iso3166_1,
-    add_iso3166_2,
-)
 from geonorm.resolve.build.admin1 import map_admin1
+from geonorm.resolve.build.builder import IndexBuilder
+from geonorm.resolve.build.cities import add_geonames
+from geonorm.resolve.build.cldr import add_cldr
+from geonorm.resolve.build.countries import add_iso3166_1
+from geonorm.resolve.build.curated import add_curated
 from geonorm.resolve.build.layout import ORIGIN_ID
 from geonorm.resolve.build.sources import Sources
+from geonorm.resolve.build.steps import STEPS
+from geonorm.resolve.build.subdivisions import add_iso3166_2
 from geonorm.resolve.index import load_index
 from geonorm.resolve.normalize import fold
 from geonorm.resolve.tables import read_table

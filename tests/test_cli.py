@@ -230,3 +230,37 @@ def test_every_command_has_help_and_docs():
             if param.name != "help" and getattr(param, "param_type_name", "") == "option":
                 assert param.help, f"{' '.join(path)} {param.opts[0]} has no help"
         assert f"geonorm {' '.join(path)}" in readme, f"README does not show {' '.join(path)}"
+
+
+def test_quiet_warm_clean_imports_only_what_it_needs(tmp_path):
+    """A quiet rerun whose answers are all cached imports neither rich (it prints nothing)
+    nor the index builder (the index exists); it writes the same file as the first run."""
+    import subprocess
+    import sys
+
+    src, cache = tmp_path / "in.csv", tmp_path / "c.sqlite"
+    _write(src, [["id", "location"], ["1", "Lyon"], ["2", "austin tx"], ["3", "Lyon"]])
+    outs = [tmp_path / "first.csv", tmp_path / "second.csv"]
+    code = (
+        "import sys\n"
+        "from geonorm.cli import app\n"
+        "try:\n"
+        "    app(sys.argv[1:])\n"
+        "except SystemExit as exc:\n"
+        "    assert not exc.code, exc.code\n"
+        "print(sorted(m for m in sys.modules if m.split('.')[0] == 'rich' "
+        "or m.startswith('geonorm.resolve.build.') and m != 'geonorm.resolve.build.layout'))\n"
+    )
+    printed = []
+    for out in outs:
+        args = ["clean", str(src), "--column", "location", "--out", str(out)]
+        done = subprocess.run(
+            [sys.executable, "-c", code, *args, "--cache", str(cache), "--quiet"],
+            capture_output=True,
+            text=True,
+            timeout=120,
+        )
+        assert done.returncode == 0, done.stderr
+        printed.append(done.stdout.strip())
+    assert printed[1] == "[]"
+    assert outs[0].read_bytes() == outs[1].read_bytes()

@@ -185,11 +185,13 @@ def test_answers_of_another_version_are_made_again(resolver, tmp_path):
 
 
 def test_status_of_each_combination_is_status_at(tmp_path):
-    """``status_at`` asked per distinct combination gives each row what it gives the row."""
+    """``status_at`` asked per distinct combination gives each row what it gives the row,
+    confidences on either side of the threshold and NaN (which reaches nothing) included."""
+    confidences = [0.0, 0.69, 0.6999999999999999, 0.7, 0.7000000000000001, 1.0, float("nan")]
     rows = [
         (Status(s), Reason(r), country, conf)
         for s, r, country, conf in itertools.product(
-            [s.value for s in Status], [r.value for r in Reason], ["", "FR"], [0.0, 0.69, 0.7, 1.0]
+            [s.value for s in Status], [r.value for r in Reason], ["", "FR", None], confidences
         )
     ]
     frame = pl.DataFrame(

@@ -369,23 +369,31 @@ class _Probe:
 def _with_status(rows: pl.DataFrame, accept: float) -> pl.DataFrame:
     """``rows`` with ``status`` as ``settle`` sets it at ``accept``.
 
-    ``status_at`` is asked once per distinct (status, reason, has a country,
-    confidence), the inputs of its rule, not once per row.
+    ``status_at`` is asked once per distinct (status, reason, has a country, confidence
+    reaches ``accept``), the inputs of its rule, not once per row: with the country and
+    confidence of one row of each, which answer as every row of it would. (Reaching is
+    compared as Python compares: NaN reaches nothing; a missing confidence is a group
+    of its own.)
     """
-    rows = rows.with_columns((pl.col("country").fill_null("") != "").alias("_placed"))
-    inputs = ["status", "reason", "_placed", "confidence"]
-    combos = rows.group_by(inputs).agg(pl.col("country").first())
+    conf = pl.col("confidence")
+    rows = rows.with_columns(
+        (pl.col("country").fill_null("") != "").alias("_placed"),
+        ((conf >= accept) & ~conf.is_nan()).alias("_reaches"),
+    )
+    inputs = ["status", "reason", "_placed", "_reaches"]
+    combos = rows.group_by(inputs).agg(pl.col("country").first(), conf.first())
     settled = [
         status_at(
-            cast(Resolution, _Probe(_STATUSES[st], _REASONS[r], country or "", conf)), accept
+            cast(Resolution, _Probe(_STATUSES[st], _REASONS[r], country or "", confidence)),
+            accept,
         ).value
-        for st, r, _, conf, country in combos.iter_rows()
+        for st, r, _, _, country, confidence in combos.iter_rows()
     ]
     combos = combos.select(inputs).with_columns(pl.Series("_settled", settled, dtype=pl.String))
     return (
         rows.join(combos, on=inputs, how="left", nulls_equal=True)
         .with_columns(pl.col("_settled").alias("status"))
-        .drop("_placed", "_settled")
+        .drop("_placed", "_reaches", "_settled")
     )
 
 

@@ -16,12 +16,10 @@ from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from ..errors import PlaceIndexError
 from ..paths import data_dir, gazetteer_dir
-from .build import build_index
-from .build.builder import Progress
 from .build.layout import (
     INDEX_VERSION,
     KINDS,
@@ -35,6 +33,9 @@ from .build.layout import (
     unpack_hit,
     unpack_hits,
 )
+
+if TYPE_CHECKING:
+    from .build.builder import Progress
 
 __all__ = [
     "INDEX_VERSION",
@@ -326,6 +327,14 @@ QUERIED_LOOKUPS = 64
 
 _loaded: dict[Path, PlaceIndex] = {}
 _load_lock = threading.Lock()
+
+
+def build_index(path: Path | None = None, progress: Progress | None = None) -> Path:
+    """Compile the place index from installed packages into ``path`` (``build.steps``,
+    imported here when called: reading an index never loads the builder)."""
+    from .build.steps import build_index as build
+
+    return build(path, progress)
 
 
 def load_index(path: Path | None = None, progress: Progress | None = None) -> PlaceIndex:
