@@ -148,3 +148,25 @@ def test_hits_and_places_are_the_objects_their_constructors_make(index):
     hit = index_module._name_hit(place, "alias")
     assert hit == NameHit(place, "alias") and vars(hit) == vars(NameHit(place, "alias"))
     assert [f.name for f in dataclasses.fields(NameHit)] == ["place", "origin"]
+
+
+def test_countries_and_subdivisions_are_read_when_first_asked_for(index):
+    """Opening an index reads neither; a container's place is the same object whichever
+    is asked for first, and equal to what another open of the file gives."""
+    fr, tx = index.countries["FR"], index.subdivisions["US-TX"]
+    columns = index_module._PlaceColumns(index._blob)
+    for p in [*index.countries.values(), *index.subdivisions.values()]:
+        made = columns.place(p.id)
+        assert made == p and [type(v) for v in vars(made).values()] == [
+            type(v) for v in vars(p).values()
+        ]
+    first_place = PlaceIndex(index.path)
+    assert "countries" not in vars(first_place) and "subdivisions" not in vars(first_place)
+    assert first_place.place(fr.id) == fr
+    assert first_place.place(fr.id) is first_place.countries["FR"]
+    assert first_place.subdivisions["US-TX"] == tx
+    first_lookup = PlaceIndex(index.path)
+    hits = first_lookup.lookup("texas")  # the first lookups are queried from SQLite
+    assert any(h.place is first_lookup.subdivisions["US-TX"] for h in hits)
+    with pytest.raises(AttributeError):
+        first_lookup.no_such_table  # noqa: B018

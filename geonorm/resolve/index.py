@@ -116,14 +116,6 @@ class PlaceIndex:
         self.noise = db.execute("SELECT phrase, position FROM noise").fetchall()
         self.postcodes = dict(db.execute("SELECT prefix, place FROM postcode").fetchall())
         self._places: dict[int, Place] = {}
-        self.countries: dict[str, Place] = {}
-        containers = "SELECT * FROM place WHERE kind IN ('country', 'subdivision') ORDER BY id"
-        for row in db.execute(containers):
-            p = Place(*row)
-            self._places[p.id] = p
-            if p.kind == "country":
-                self.countries[p.cc] = p
-        self.subdivisions = {p.sub: p for p in self._places.values() if p.kind == "subdivision"}
         # Per first letter: the keys by length, their lengths, their hit codes.
         self._fuzzy_blocks: dict[str, tuple[list[str], list[int], array]] = {}
         self._lock = threading.Lock()
@@ -133,6 +125,34 @@ class PlaceIndex:
         # The names looked up lately, by name (a string key: hashed once, kept untracked
         # by the garbage collector).
         self._hits = lru_cache(maxsize=100_000)(self._find)
+
+    # Countries and subdivisions (by code), read when first asked for (``__getattr__``):
+    # a run whose answers are all stored never needs them.
+    countries: dict[str, Place]
+    subdivisions: dict[str, Place]
+
+    def __getattr__(self, name: str) -> Any:
+        if name not in ("countries", "subdivisions"):
+            raise AttributeError(name)
+        with self._lock:
+            if "subdivisions" not in self.__dict__:
+                self._read_containers()
+        return self.__dict__[name]
+
+    def _read_containers(self) -> None:
+        """The countries and subdivisions, each also the place its id stands for (the
+        object ``place`` gave, if it gave one already: the packed columns and the table
+        hold the same values, tests/test_index_tables.py checks it)."""
+        containers = "SELECT * FROM place WHERE kind IN ('country', 'subdivision') ORDER BY id"
+        countries, subdivisions = {}, {}
+        for row in self._db().execute(containers):
+            p = self._places.setdefault(row[0], Place(*row))
+            if p.kind == "country":
+                countries[p.cc] = p
+            else:
+                subdivisions[p.sub] = p
+        self.countries = countries
+        self.subdivisions = subdivisions  # last: its presence says both are read
 
     def _db(self) -> sqlite3.Connection:
         db = getattr(self._local, "db", None)
@@ -150,7 +170,8 @@ class PlaceIndex:
         """Load the packed name and place tables now, not at the first lookups (a pool
         forked afterwards shares them)."""
         self._name_table()
-        self.place(1)
+        self._place_columns()
+        self.subdivisions  # noqa: B018 - and the countries with them
         self._lookups = QUERIED_LOOKUPS
 
     def _blob(self, name: str) -> bytes:
@@ -176,15 +197,17 @@ class PlaceIndex:
     def place(self, pid: int) -> Place:
         p = self._places.get(pid)
         if p is None:
-            columns = self._columns
-            if columns is None:
-                with self._lock:
-                    if self._columns is None:
-                        self._columns = _PlaceColumns(self._blob)
-                    columns = self._columns
-            p = columns.place(pid)
-            self._places[pid] = p
+            p = self._places.setdefault(pid, self._place_columns().place(pid))
         return p
+
+    def _place_columns(self) -> _PlaceColumns:
+        columns = self._columns
+        if columns is None:
+            with self._lock:
+                if self._columns is None:
+                    self._columns = _PlaceColumns(self._blob)
+                columns = self._columns
+        return columns
 
     def lookup(self, key: str) -> tuple[NameHit, ...]:
         """All places whose folded name equals ``key``, with the name's origin (in the
@@ -216,9 +239,9 @@ class PlaceIndex:
             )
             .fetchall()
         )
-        return tuple(
-            NameHit(self._places.get(r[0]) or Place(*r[:10]), ORIGINS[r[10]]) for r in rows
-        )
+        places = self._places
+        self.subdivisions  # noqa: B018 - read first: a container is the one object for it
+        return tuple(NameHit(places.get(r[0]) or Place(*r[:10]), ORIGINS[r[10]]) for r in rows)
 
     @lru_cache(maxsize=4096)  # noqa: B019 - the index lives as long as the process
     def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], TypoTargets]:
