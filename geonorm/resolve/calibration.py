@@ -18,6 +18,7 @@ import json
 import math
 from collections.abc import Sequence
 from dataclasses import asdict, dataclass, field
+from functools import lru_cache
 from pathlib import Path
 
 from .resolution import Status
@@ -62,8 +63,7 @@ class Calibration:
     def apply(self, score: float, reason: object = None) -> float:
         if self.method == "identity":
             return min(max(score, 0.0), 1.0)
-        key = _curve_of(str(getattr(reason, "value", reason)))
-        a, b = self.by_reason.get(key, (self.a, self.b))
+        a, b = self.by_reason.get(_curve_key(reason), (self.a, self.b))
         return _sigmoid(a * _logit(score) + b)
 
     def save(self, path: Path = CALIBRATION_PATH) -> None:
@@ -78,6 +78,13 @@ _SHARED_CURVE = {"file_prior": "city_by_size"}
 
 def _curve_of(reason: str) -> str:
     return _SHARED_CURVE.get(reason, reason)
+
+
+@lru_cache(maxsize=256, typed=True)
+def _curve_key(reason: object) -> str:
+    """The curve of a reason given as a ``Reason`` or as its value (an enum's
+    ``value`` is slow to read, and every answer asks)."""
+    return _curve_of(str(getattr(reason, "value", reason)))
 
 
 def load_calibration(path: Path = CALIBRATION_PATH) -> Calibration:

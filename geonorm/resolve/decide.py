@@ -150,7 +150,11 @@ class Group:
 
     def is_region(self) -> bool:
         """Only world regions ("Southeast Asia"): no country."""
-        return all(r.place.kind == "region" for m in self.mentions for r in m.readings)
+        for m in self.mentions:
+            for r in m.readings:
+                if r.place.kind != "region":
+                    return False
+        return True
 
 
 @dataclass(frozen=True)
@@ -292,6 +296,10 @@ def _fame_factor(fame: int) -> float:
 
 def weigh(group: Group, qualifiers: Sequence[Mention]) -> Weighed:
     """The country distribution of one place, and each mention's consistent readings."""
+    if len(group.mentions) == 1 and not qualifiers:
+        # One mention keeps all its readings, container or not.
+        kept = [group.mentions[0].readings]
+        return Weighed(group, (), _combine(kept), kept)
     mentions = group.mentions + list(qualifiers)
     containers = [m.is_container for m in mentions]
     if True in containers:
@@ -358,7 +366,8 @@ def _combine(kept: list[list[Reading]]) -> dict[str, float]:
             if sum(merged.values()) > 0:
                 dist = merged
         total = sum(dist.values())
-        dist = {c: v / total for c, v in dist.items()}
+        if total != 1.0:  # dividing by 1 changes no share
+            dist = {c: v / total for c, v in dist.items()}
     return dist
 
 
@@ -445,7 +454,8 @@ def decide(query: Query, mentions: list[Mention], fictional: Sequence[str] = ())
     several = _several_countries(places, joint)
     if several is not None:
         return several
-    res = _one_country(query, places, joint, [w for w in every if w not in places])
+    former = [w for w in every if w not in places] if places is not every else []
+    res = _one_country(query, places, joint, former)
     if by_cue:
         res.reason = Reason.CURRENT_PLACE
     return res
@@ -477,7 +487,7 @@ def _weighed_places(mentions: list[Mention]) -> tuple[list[Weighed], Reason | No
         return [], Reason.WORLD_REGION
     if not located:
         located, qualifiers = [Group(qualifiers)], []
-    places = [w for w in (weigh(g, qualifiers) for g in located) if w.dist]
+    places = [w for w in map(weigh, located, itertools.repeat(qualifiers)) if w.dist]
     return places, None if places else Reason.NO_MATCH
 
 
@@ -607,23 +617,28 @@ def _in_country(readings: list[Reading], cc: str) -> list[Reading]:
 
 def _findings(places: list[Weighed], top: str) -> _Findings:
     found = _Findings()
+    one_place = len(places) == 1
     for w in places:
         group_points = []
-        for m, rs in zip(w.mentions, w.kept, strict=True):
+        mentions = w.mentions if w.qualifiers else w.group.mentions
+        for m, rs in zip(mentions, w.kept, strict=True):
             found.sources.add(m.source)
             rs_c = _in_country(rs, top)
             heaviest = _heaviest(rs_c)
-            found.subs_named |= _qualifying_subdivisions(rs, rs_c, heaviest)
+            if heaviest is not None and heaviest.place.kind != "country":
+                found.subs_named |= _qualifying_subdivisions(rs, rs_c, heaviest)
             point, split = city_point(rs_c)
             if split:
                 found.undetermined = True
                 continue
-            if point is None and len(places) == 1:
-                found.subs_named |= _subdivisions_named(rs_c, heaviest)
-            if point is not None:
-                group_points.append(point)
-                if len({r.place.cc for r in rs if r.place.kind == "city"}) > 1:
-                    found.ambiguous_points = True
+            if point is None:
+                if one_place:
+                    found.subs_named |= _subdivisions_named(rs_c, heaviest)
+                continue
+            group_points.append(point)
+            # One reading is one country: only several can make the city ambiguous.
+            if not found.ambiguous_points and len(rs) > 1:
+                found.ambiguous_points = len({r.place.cc for r in rs if r.place.kind == "city"}) > 1
         if group_points:
             found.points.append(max(group_points, key=_WEIGHT))
     return found
@@ -716,7 +731,7 @@ def _reason(
 def _city_reason(place: Weighed, found: _Findings) -> Reason:
     if any(r.origin == "alias" for r in found.points):
         return Reason.NICKNAME
-    if len(place.mentions) > 1:
+    if len(place.group.mentions) + len(place.qualifiers) > 1:
         return Reason.CITY_WITH_CONTEXT
     if found.ambiguous_points:
         return Reason.CITY_BY_SIZE
@@ -801,7 +816,7 @@ def evidence_score(
     best = _heaviest(readings)
     score = _bare_town(score, best, places)
     score = _only_nationality(score, best, readings)
-    score *= min(1.0, min([strength(w) for w in places]) / PRIOR_FULL)
+    score *= min(1.0, min(map(strength, places)) / PRIOR_FULL)
     return max(SCORE_FLOOR, min(SCORE_CEILING, score))
 
 
@@ -817,23 +832,25 @@ def _unexplained(score: float, query: Query, places: list[Weighed]) -> float:
     stray word is suspicious, an ordinary word of the text's language ("Bergen and
     proud of it") much less so; a whole part nobody explained (a street line, an
     aside) less again."""
-    named = [m for w in places for m in w.group.mentions]
-    parts_with = {m.part for m in named}
+    used_in: dict[int, set[str]] = {}  # part → the words its mentions use
+    for w in places:
+        for m in w.group.mentions:
+            used_in.setdefault(m.part, set()).update(m.text.split())
     lang = -1
     for pi, part in enumerate(query.parts):
-        words = [t.key for t in part.tokens if t.key not in STOPWORDS]
-        if pi in parts_with:
-            used = {w for m in named if m.part == pi for w in m.text.split()}
-            stray = [w for w in words if w not in used]
-            if not stray:
-                continue  # a factor of STRAY_WORD_FACTOR ** 0
-            if lang < 0 and _any_ordinary(stray):
-                lang = text_language(t.orig for p in query.parts for t in p.tokens)
-            # Without an ordinary word in any language, every language counts the same.
-            count = _stray_count(stray, max(lang, 0))
-            score *= STRAY_WORD_FACTOR ** min(count, MAX_STRAY_WORDS)
-        elif words and not part.street:
-            score *= LOOSE_PART_FACTOR
+        used = used_in.get(pi)
+        if used is None:
+            if not part.street and any(t.key not in STOPWORDS for t in part.tokens):
+                score *= LOOSE_PART_FACTOR
+            continue
+        stray = [t.key for t in part.tokens if t.key not in STOPWORDS and t.key not in used]
+        if not stray:
+            continue  # a factor of STRAY_WORD_FACTOR ** 0
+        if lang < 0 and _any_ordinary(stray):
+            lang = text_language(t.orig for p in query.parts for t in p.tokens)
+        # Without an ordinary word in any language, every language counts the same.
+        count = _stray_count(stray, max(lang, 0))
+        score *= STRAY_WORD_FACTOR ** min(count, MAX_STRAY_WORDS)
     return score
 
 

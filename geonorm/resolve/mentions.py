@@ -94,7 +94,8 @@ def gather(
         if whole is not None:
             weak.add(pi)
             respelt = [m for m in respelt if m.part != pi] + [whole]
-    _replace_weak(by_span, _misspelt(query, respelt), weak)
+    if respelt:
+        _replace_weak(by_span, _misspelt(query, respelt), weak)
     kept = prune(whole_text + sorted(by_span.values(), key=_POSITION))
     typed = [_typed_words(query, m) for m in kept]
     return weigh_words(
@@ -403,15 +404,27 @@ def _rules_for(kinds: frozenset[str], origins: frozenset[str]) -> tuple[Rule, ..
     return tuple(rules)
 
 
+@lru_cache(maxsize=1024)
+def _rules_for_one(kind: str, origin: str) -> tuple[Rule, ...]:
+    """``_rules_for`` a single reading of this kind and origin, but ``_main_name``: it
+    demotes readings beside a large city's own name, which a single reading lacks."""
+    rules = _rules_for(frozenset([kind]), frozenset([origin]))
+    return tuple(rule for rule in rules if rule is not _main_name)
+
+
 def prune(mentions: list[Mention]) -> list[Mention]:
     """Apply ``PRUNE_RULES`` in order to each mention; drop mentions left without readings."""
     several = len(mentions) > 1
     out = []
     for m in mentions:
         readings = m.readings
-        kinds = frozenset([r.place.kind for r in readings])
-        origins = frozenset([r.origin for r in readings])
-        for rule in _rules_for(kinds, origins):
+        if len(readings) == 1:  # most mentions: no sets to build
+            rules = _rules_for_one(readings[0].place.kind, readings[0].origin)
+        else:
+            kinds = frozenset([r.place.kind for r in readings])
+            origins = frozenset([r.origin for r in readings])
+            rules = _rules_for(kinds, origins)
+        for rule in rules:
             readings = rule(readings, several)
         if not readings:
             continue
@@ -710,8 +723,11 @@ def _may_be_ordinary(query: Query, m: Mention, typed: list[str] | None = None) -
     mention's ``_typed_words``."""
     if typed is None:
         typed = _typed_words(query, m)
-    content = [w for w in typed if w.casefold() not in _NOT_CONTENT] or typed
-    z = min(map(_top_zipf, content), default=0.0)
+    if len(typed) == 1:  # most mentions: one word, its own content
+        z = _top_zipf(typed[0])
+    else:
+        content = [w for w in typed if w.casefold() not in _NOT_CONTENT] or typed
+        z = min(map(_top_zipf, content), default=0.0)
     if z <= 0 or _trusted(m, typed):  # most place names are in no list: checked first
         return False
     renown = ORDINARY_ZIPF_BASE + ORDINARY_ZIPF_SLOPE * math.log10(max(_renown(m.readings), 1.0))
