@@ -18,7 +18,7 @@ from __future__ import annotations
 import re
 import unicodedata
 from dataclasses import dataclass
-from functools import lru_cache
+from functools import cached_property, lru_cache
 
 from .coordinates import find_coordinates
 from .tables import POSTCODE_FORMATS, STREET_SUFFIX_ONLY, STREET_WORDS
@@ -268,8 +268,8 @@ class Part:
         ""  # the folded part with only its leading noise removed ("the bay area" → "bay area")
     )
 
-    @property
-    def key(self) -> str:
+    @cached_property
+    def key(self) -> str:  # read often, by each stage: joined once per part
         return " ".join(t.key for t in self.tokens)
 
     def __hash__(self) -> int:
@@ -290,6 +290,47 @@ class Query:
     coordinates: tuple[tuple[float, float], ...] = ()  # (latitude, longitude) pairs
     zones: tuple[str, ...] = ()  # IANA time-zone names ("Africa/Lagos"), see timezones.py
     offsets: tuple[str, ...] = ()  # UTC offsets and Etc/ zones ("UTC+2"): no place
+
+
+_new = object.__new__
+
+
+def _part(tokens: tuple[Token, ...], full_key: str, street: bool, lead_key: str) -> Part:
+    """``Part(tokens, full_key, street, lead_key)``, made faster than by the frozen
+    dataclass's ``__init__`` (each distinct part makes one); the same object."""
+    part = _new(Part)
+    part.__dict__.update(tokens=tokens, full_key=full_key, street=street, lead_key=lead_key)
+    return part
+
+
+def _query(
+    raw: str,
+    key: str,
+    folded: str,
+    parts: tuple[Part, ...],
+    flags: tuple[str, ...],
+    postcodes: tuple[str, ...],
+    has_letters: bool,
+    coordinates: tuple[tuple[float, float], ...],
+    zones: tuple[str, ...],
+    offsets: tuple[str, ...],
+) -> Query:
+    """``Query(...)`` with every field given, made faster than by the frozen dataclass's
+    ``__init__`` (one per text, ten fields); the same object."""
+    query = _new(Query)
+    query.__dict__.update(
+        raw=raw,
+        key=key,
+        folded=folded,
+        parts=parts,
+        flags=flags,
+        postcodes=postcodes,
+        has_letters=has_letters,
+        coordinates=coordinates,
+        zones=zones,
+        offsets=offsets,
+    )
+    return query
 
 
 class NoisePhrases:
@@ -491,8 +532,13 @@ def _tokens(text: str, chunk: str, postcodes: list[str]) -> list[Token]:
     """The words of ``text`` with their typed forms from ``chunk``; numeric postcodes go
     into ``postcodes``, house numbers and other numbers are dropped."""
     orig_by_key: dict[str, str] = {}
-    for w in _TOKEN.findall(chunk):
-        orig_by_key.setdefault(fold(w), w.strip("."))
+    if chunk.isascii() and chunk.replace(" ", "").isalnum():
+        # Plain ASCII words (the common case): each is a token, folded by lowering it.
+        for w in chunk.split():
+            orig_by_key.setdefault(w.lower(), w)
+    else:
+        for w in _TOKEN.findall(chunk):
+            orig_by_key.setdefault(fold(w), w.strip("."))
     tokens = []
     for word in text.split():
         word = word.strip("'-+<>|")
@@ -518,7 +564,7 @@ def _read_part(chunk: str, noise: NoisePhrases) -> tuple[Part | None, tuple[str,
     tokens = _tokens(_take_postcodes(stripped, postcodes), chunk, postcodes)
     if not tokens:
         return None, tuple(postcodes)
-    part = Part(tuple(tokens), folded, _is_street(folded.split()), noise.strip_prefix(folded))
+    part = _part(tuple(tokens), folded, _is_street(folded.split()), noise.strip_prefix(folded))
     return part, tuple(postcodes)
 
 
@@ -544,7 +590,7 @@ def normalize(raw: object, noise: NoisePhrases | None = None) -> Query:
         has_letters = _ASCII_LETTER.search(key) is not None or bool(flags)
     else:
         has_letters = any(c.isalpha() for c in key) or bool(flags)
-    return Query(
+    return _query(
         raw,
         key,
         fold(text),

@@ -12,7 +12,7 @@ unexplained and prunes readings; ``decide.py`` weighs what remains.
 from __future__ import annotations
 
 import re
-from collections.abc import Sequence
+from collections.abc import Container, Sequence
 from dataclasses import dataclass, field
 from functools import lru_cache
 from typing import Protocol
@@ -20,7 +20,7 @@ from typing import Protocol
 from rapidfuzz import process
 from rapidfuzz.distance import OSA
 
-from .index import NameHit, Place, PlaceIndex
+from .index import ORIGINS, NameHit, Place, PlaceIndex
 from .normalize import Part, Query
 from .tables import (
     BARE_POSTAL_COUNTRIES,
@@ -57,6 +57,10 @@ _IPV4 = re.compile(r"^\d{1,3}(?:[ .]\d{1,3}){3}$")
 # Bounded repeats: a megabyte-long cell must not make the search quadratic.
 _URL = re.compile(r"(?:https?|www)\b|\.(?:com|org|net|io|dev)\b|[\w.+-]{1,64}@[\w-]{1,64}\.\w")
 _KEY_ROWS = ("qwertyuiop", "asdfghjkl", "zxcvbnm", "1234567890")
+# Runs of five or more keys along a row ("asdfg"): what ``_looks_like_junk`` looks for.
+_KEY_RUNS = frozenset(
+    row[i:j] for row in _KEY_ROWS for i in range(len(row)) for j in range(i + 5, len(row) + 1)
+)
 _NOT_WORD = re.compile(r"[^\w\s]")
 _SPACES = re.compile(r"\s+")
 
@@ -77,17 +81,13 @@ class Reading:
 
 
 _new = object.__new__
-_set = object.__setattr__
 
 
 def _reading(place: Place, origin: str, weight: float) -> Reading:
     """``Reading(place, origin, weight)``, made faster than by the frozen dataclass's
     ``__init__`` (the stages make many); the same object."""
     reading = _new(Reading)
-    _set(reading, "place", place)
-    _set(reading, "origin", origin)
-    _set(reading, "weight", weight)
-    _set(reading, "similarity", 1.0)
+    reading.__dict__.update(place=place, origin=origin, weight=weight, similarity=1.0)
     return reading
 
 
@@ -310,14 +310,9 @@ def _looks_like_junk(query: Query) -> bool:
     bare = query.folded.replace(" ", "")
     if _IPV4.match(query.folded) or (_may_be_url(query.key) and _URL.search(query.key)):
         return True
-    if (
-        len(bare) >= 5
-        and bare.isalpha()
-        and bare.isascii()
-        and any(bare in row for row in _KEY_ROWS)
-    ):
+    if bare in _KEY_RUNS and bare.isalpha():
         return True
-    return len(bare) >= 3 and len(set(bare)) == 1
+    return len(bare) >= 3 and bare.count(bare[0]) == len(bare)
 
 
 class FlagStage:
@@ -381,18 +376,26 @@ class _SpanStage:
 
     def __init__(self, index: PlaceIndex) -> None:
         self.index = index
+        self._kinds = frozenset(self.kinds)
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         return True
 
+    def checked(self, span: Span) -> Container[str]:
+        """The origins of the span's names that ``allowed`` may refuse; a name of any
+        other origin is allowed without asking (a stage that overrides ``allowed``
+        overrides this too)."""
+        return ()
+
     def resolve(self, query: Query, spans: Sequence[Span]) -> list[Mention]:
         out = []
-        allowed, kinds = self.allowed, self.kinds
+        allowed, kinds = self.allowed, self._kinds
         for span in spans:
+            checked = self.checked(span)
             best: dict[int, Reading] = {}  # one reading per place: its strongest allowed name
             for h in span.hits:
                 place = h.place
-                if place.kind in kinds and allowed(query, span, h):
+                if place.kind in kinds and (h.origin not in checked or allowed(query, span, h)):
                     weight = place_weight(place, h.origin)
                     kept = best.get(place.id)
                     if kept is None or weight > kept.weight:
@@ -441,9 +444,17 @@ def _subdivision_code_allowed(
     return True
 
 
+_COUNTRY_CODES = frozenset({"code2", "code3"})  # the origins ``CountryStage.allowed`` reads
+_SUBDIVISION_CODES = frozenset({"postal", "sub_code"})  # and ``SubdivisionStage.allowed``
+_ALL_BUT_ALIAS = frozenset(ORIGINS) - {"alias"}
+
+
 class CountryStage(_SpanStage):
     name = "country"
     kinds = ("country",)
+
+    def checked(self, span: Span) -> Container[str]:
+        return _COUNTRY_CODES
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         if hit.origin in ("code2", "code3"):
@@ -480,6 +491,9 @@ class SubdivisionStage(_SpanStage):
     name = "subdivision"
     kinds = ("subdivision", "area", "region")
 
+    def checked(self, span: Span) -> Container[str]:
+        return _SUBDIVISION_CODES
+
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         if hit.origin in ("postal", "sub_code"):
             return _code_allowed(query, span, hit.origin, hit.place.cc)
@@ -489,6 +503,12 @@ class SubdivisionStage(_SpanStage):
 class CityStage(_SpanStage):
     name = "city"
     kinds = ("city",)
+
+    def checked(self, span: Span) -> Container[str]:
+        # ``allowed`` refuses only names of two letters or fewer, never an alias.
+        if len(span.key.replace(".", "")) <= 2 and span.key.isascii():
+            return _ALL_BUT_ALIAS
+        return ()
 
     def allowed(self, query: Query, span: Span, hit: NameHit) -> bool:
         # An alias for a city written in capitals (NYC, KL) is fine; a
