@@ -374,3 +374,18 @@ def test_readings_are_the_objects_their_constructor_makes(resolver):
         "weight",
         "similarity",
     ]
+
+
+def test_noise_patterns_are_compiled_when_first_needed(resolver):
+    """A new resolver compiles no noise pattern (a warm rerun needs none); stripping
+    compiles them once, as ``warm`` does before workers fork."""
+    from geonorm import Resolver
+
+    fresh = Resolver(resolver.index)
+    assert fresh.noise._compiled is None
+    assert fresh.normalize("based in Lyon area").parts[0].key == "lyon"
+    compiled = fresh.noise._compiled
+    assert compiled is not None
+    fresh.warm()
+    assert fresh.noise._compiled is compiled
+    assert fresh.resolve("based in Lyon area") == resolver.resolve("based in Lyon area")

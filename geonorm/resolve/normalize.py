@@ -337,13 +337,8 @@ class NoisePhrases:
     """Noise phrases by position: removed at the start, end or anywhere of a part."""
 
     def __init__(self, prefix: list[str], suffix: list[str], anywhere: list[str]) -> None:
-        def alternation(phrases: list[str]) -> str:
-            keys = sorted({fold(p) for p in phrases if fold(p)}, key=len, reverse=True)
-            return "|".join(re.escape(k) for k in keys) or r"(?!x)x"
-
-        self._prefix = re.compile(rf"^(?:(?:{alternation(prefix)})\s+)+(?=\S)")
-        self._suffix = re.compile(rf"(?<=\S)(?:\s+(?:{alternation(suffix)}))+$")
-        self._anywhere = re.compile(rf"(?:^|\s)(?:{alternation(anywhere)})(?=\s|$)")
+        self._phrases = (prefix, suffix, anywhere)
+        self._compiled: tuple[re.Pattern[str], re.Pattern[str], re.Pattern[str]] | None = None
         # A phrase matches only where its first (or, at the end, its last) word is a
         # word of the text: text without such a word is left as it is, unread.
         self._heads = _words_at(prefix, 0)
@@ -356,6 +351,24 @@ class NoisePhrases:
 
     def _read_part(self, chunk: str) -> tuple[Part | None, tuple[str, ...]]:
         return _read_part(chunk, self)
+
+    def patterns(self) -> tuple[re.Pattern[str], re.Pattern[str], re.Pattern[str]]:
+        """The prefix, suffix and anywhere patterns, compiled when first needed (a few
+        tens of milliseconds: a run whose answers are all stored never needs them)."""
+        compiled = self._compiled
+        if compiled is None:
+
+            def alternation(phrases: list[str]) -> str:
+                keys = sorted({fold(p) for p in phrases if fold(p)}, key=len, reverse=True)
+                return "|".join(re.escape(k) for k in keys) or r"(?!x)x"
+
+            prefix, suffix, anywhere = self._phrases
+            compiled = self._compiled = (
+                re.compile(rf"^(?:(?:{alternation(prefix)})\s+)+(?=\S)"),
+                re.compile(rf"(?<=\S)(?:\s+(?:{alternation(suffix)}))+$"),
+                re.compile(rf"(?:^|\s)(?:{alternation(anywhere)})(?=\s|$)"),
+            )
+        return compiled
 
     def _may_match(self, words: list[str]) -> bool:
         """Whether any phrase may match a text of these words (False only when none can)."""
@@ -370,19 +383,20 @@ class NoisePhrases:
         words = key.split(None, 1)
         if not words or words[0] not in self._heads:
             return key.strip()
-        return self._prefix.sub("", key).strip()
+        return self.patterns()[0].sub("", key).strip()
 
     def strip(self, key: str) -> str:
         """Remove noise around a part; a part that is nothing but noise stays as it is
         ("AU" is Australia's code, not the French article)."""
         if not self._may_match(key.split()):
             return key.strip()
+        prefix, suffix, anywhere = self.patterns()
         previous = None
         while previous != key:
             previous = key
-            key = self._anywhere.sub(" ", key).strip() or key
-            key = self._prefix.sub("", key).strip()
-            key = self._suffix.sub("", key).strip()
+            key = anywhere.sub(" ", key).strip() or key
+            key = prefix.sub("", key).strip()
+            key = suffix.sub("", key).strip()
         return key
 
 

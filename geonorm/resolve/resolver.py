@@ -113,9 +113,11 @@ class Resolver:
         )
 
     def warm(self) -> None:
-        """Load the in-memory tables (names, places, words) now rather than on first use:
-        before forking workers, so that they share them instead of each loading its own."""
+        """Load the in-memory tables (names, places, words) and compile the noise patterns
+        now rather than on first use: before forking workers, so that they share them
+        instead of each making its own."""
         self.index.load_tables()
+        self.noise.patterns()
         load_words()
 
     def normalize(self, raw: object) -> Query:
