@@ -9,10 +9,14 @@ import csv
 import io
 import itertools
 import random
+import re
 import sqlite3
+from pathlib import Path
 
 import polars as pl
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from geonorm.batch import columnar
 from geonorm.batch.answers import resolve_keys
@@ -22,6 +26,7 @@ from geonorm.batch.columnar import answer_table
 from geonorm.batch.formats import _text_column, as_text_row
 from geonorm.batch.schema import GeoRow
 from geonorm.errors import CacheError
+from geonorm.resolve.normalize import normalize_key
 from geonorm.resolve.resolution import Reason, Resolution, Status, status_at
 from geonorm.resolve.resolver import Resolver
 
@@ -271,3 +276,43 @@ def test_a_damaged_stored_answer_is_named_with_a_hint(resolver, tmp_path):
         with pytest.raises(CacheError) as err:
             answer_table(_values(_TEXTS), resolver=resolver, cache=cache)
     assert "damaged" in err.value.message
+
+
+_ASCII_MIX = "aAzZbTXc09_ .,-'/()#&\t\n\x0b\x0c\r\x1c\x1d\x1e\x1f\x00\x7f"
+
+
+def _labelled_texts() -> list[str]:
+    texts = []
+    for name in ("locations_dev.csv", "locations_fresh.csv", "locations_more.csv"):
+        with open(Path(__file__).parent / "data" / name, encoding="utf-8") as fh:
+            texts += [r["text"] for r in csv.DictReader(fh)]
+    return texts
+
+
+def _check_plain_keys(texts: list[str]) -> int:
+    """``plain_keys`` gives ``normalize_key``'s key wherever it gives one; how many."""
+    got = columnar.plain_keys(pl.Series(texts, dtype=pl.String)).to_list()
+    for text, key in zip(texts, got, strict=True):
+        if key is not None:
+            assert key == normalize_key(text), repr(text)
+    return sum(k is not None for k in got)
+
+
+def test_plain_keys_are_normalize_key():
+    """On the labelled sets, with case, spacing and length variants of each text."""
+    base = _labelled_texts()
+    rng = random.Random(3)
+    texts = [*base, *(t.upper() for t in base), *(t.lower() for t in base)]
+    texts += [f" {t}\t\x1c {rng.choice(base)}  " for t in base]
+    texts += ["", " ", "\x1f", "a" * 500, "a" * 501, "ab " * 200, "CAN", "Can", "CANADA"]
+    plain = _check_plain_keys(texts)
+    assert plain > len(texts) / 2  # most texts are plain: the fast path is taken
+    # Every ASCII whitespace Python's ``re`` knows is one the polars pattern collapses.
+    spaces = {chr(c) for c in range(128) if re.fullmatch(r"\s", chr(c))}
+    assert _check_plain_keys([f"a{c}{c}b" for c in spaces]) == len(spaces)
+
+
+@given(st.text(alphabet=_ASCII_MIX, max_size=40))
+@settings(max_examples=400, deadline=None)
+def test_plain_keys_match_normalize_key_on_any_ascii(text):
+    _check_plain_keys([text, text.upper(), f"  {text} ", text * 3])

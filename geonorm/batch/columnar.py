@@ -30,6 +30,7 @@ from typing import TYPE_CHECKING, Any, cast, overload
 import polars as pl
 
 from ..progress import Progress, no_progress, note, start
+from ..resolve.normalize import MAX_TEXT
 from ..resolve.prior import eligible, file_prior, reconsider
 from ..resolve.resolution import Reason, Resolution, Status, status_at
 from ..resolve.resolver import Resolver
@@ -291,8 +292,12 @@ def with_keys(values: pl.DataFrame, resolver: Resolver, cache: Cache | None) -> 
     new = new.sort()  # stored in the order of the table's index: about half the writing time
     parts = [known]
     for start_at in range(0, new.len(), _KEY_BATCH):  # a batch at a time: few Python strings
-        batch = new.slice(start_at, _KEY_BATCH).to_list()
-        keys = [resolver.key(t) for t in batch]
+        texts_in = new.slice(start_at, _KEY_BATCH)
+        batch = texts_in.to_list()
+        keys = [
+            resolver.key(t) if k is None else k
+            for t, k in zip(batch, plain_keys(texts_in).to_list(), strict=True)
+        ]
         if cache is not None:
             kept = [i for i, t in enumerate(batch) if len(t) <= KEPT_TEXT]
             cache.put_text_keys([batch[i] for i in kept], [keys[i] for i in kept], version)
@@ -307,6 +312,29 @@ def with_keys(values: pl.DataFrame, resolver: Resolver, cache: Cache | None) -> 
         .otherwise(pl.col("key"))
         .alias("key")
     )
+
+
+# ASCII whitespace as Python's ``str.isspace`` (and ``re``'s ``\s``) knows it: with
+# \x1c to \x1f, which a regex engine's ``\s`` may leave out.
+_ASCII_SPACES = "[" + "".join(f"\\x{c:02x}" for c in range(128) if chr(c).isspace()) + "]+"
+
+
+def plain_keys(texts: pl.Series) -> pl.Series:
+    """``normalize_key`` of each text where that is plain, computed in polars; missing
+    for the others (and for a missing text), which are normalised one by one.
+
+    Plain: ASCII, at most ``MAX_TEXT`` characters, no word of two or three capitals
+    (kept as typed: "CAN" is a country code). The key of such a text is the text
+    lowercased, each run of whitespace one space, stripped: what ``normalize_key``'s
+    ASCII path gives (tests/test_warm_path.py checks it against ``normalize_key``).
+    """
+    plain = (
+        (texts.str.len_bytes() == texts.str.len_chars())  # one byte a character: ASCII
+        & (texts.str.len_bytes() <= MAX_TEXT)
+        & ~texts.str.contains(r"\b[A-Z]{2,3}\b")
+    )
+    key = texts.str.replace_all(_ASCII_SPACES, " ").str.to_lowercase().str.strip_chars(" ")
+    return pl.select(pl.when(plain).then(key).alias(texts.name)).to_series()
 
 
 def _rows_of(answers: Mapping[str, Resolution], accept: float | None = None) -> pl.DataFrame:
