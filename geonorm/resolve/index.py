@@ -171,12 +171,15 @@ class PlaceIndex:
         self._lock = threading.Lock()
 
     def load_tables(self) -> None:
-        """Load the packed name and place tables now, not at the first lookups (a pool
-        forked afterwards shares them)."""
+        """Load the packed name, place and typo tables now, not at the first lookups (a
+        pool forked afterwards shares them)."""
         self._name_table()
         self._place_columns()
         self.subdivisions  # noqa: B018 - and the countries with them
         self._lookups = QUERIED_LOOKUPS
+        blocks = self._db().execute("SELECT name FROM packed WHERE name LIKE 'fuzzy:%'")
+        for (name,) in blocks.fetchall():
+            self.fuzzy_masks(name.split(":", 1)[1], 0, 0)  # the block, and its letter sets
 
     def _blob(self, name: str) -> bytes:
         """One of the packed tables (``build.layout``), or b'' when there is none."""
